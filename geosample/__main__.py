@@ -1,0 +1,4 @@
+"""``python -m geosample`` runs the command line."""
+from geosample.cli import run
+
+run()

@@ -1,0 +1,1 @@
+"""``geosample size`` (implemented with the sizing engine)."""
