@@ -38,7 +38,7 @@ from .model import (
     Visit,
 )
 
-__version__ = "0.1.0"
+from .version import __version__
 
 _LAZY = {
     "sample_size": "geosample.stats.sizing",

@@ -31,8 +31,11 @@ def seed_from_text(text: str) -> int:
 
 
 def fresh_seed() -> int:
-    """A new 128-bit seed from the operating system's entropy source."""
-    return secrets.randbits(128)
+    """A new 63-bit seed from the operating system's entropy source.
+
+    63 bits fit a TOML integer, so the seed can be copied into a plan file.
+    """
+    return secrets.randbits(63)
 
 
 def _key(name: str) -> tuple[int, ...]:

@@ -1,0 +1,309 @@
+"""The manifest of a design and its verification.
+
+``manifest.json`` records everything needed to re-derive a design: the SHA-256
+of the plan and of every input layer, the resolved settings with the seed, the
+frame CRS, the package and library versions, and the SHA-256 of every output.
+:func:`verify` re-runs the design from the manifest and the input files and
+lists every difference: an input layer changed, a site moved, a time changed,
+an output edited, a library version that draws differently.
+
+The manifest holds no clock time, so the same plan, inputs and seed give a
+byte-identical manifest; the time of each draw is in the plan's draw record.
+"""
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import json
+import os
+import platform
+from dataclasses import asdict, dataclass, field
+from importlib import metadata
+from pathlib import Path
+from typing import Any
+
+from .errors import InputFileError
+from .model import Design
+
+__all__ = ["MANIFEST", "LIBRARIES", "write_manifest", "read_manifest", "verify", "Verification", "library_versions",
+           "sha256_file", "sites_digest", "manifest_data"]
+
+MANIFEST = "manifest.json"
+LIBRARIES = ("numpy", "scipy", "pandas", "shapely", "pyproj", "pyogrio", "geopandas", "networkx", "astral",
+             "folium", "gpxpy", "jinja2")
+
+
+def sha256_file(path: str | Path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(lambda: fh.read(1 << 20), b""):
+            h.update(chunk)
+    return h.hexdigest()
+
+
+def library_versions() -> dict[str, str]:
+    """Versions of the libraries whose behaviour the draw depends on (GEOS and PROJ included)."""
+    out = {"python": platform.python_version()}
+    for name in LIBRARIES:
+        try:
+            out[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:
+            out[name] = "not installed"
+    try:
+        import shapely
+
+        out["GEOS"] = shapely.geos_version_string
+    except Exception:  # pragma: no cover
+        pass
+    try:
+        import pyproj
+
+        out["PROJ"] = pyproj.proj_version_str
+    except Exception:  # pragma: no cover
+        pass
+    return out
+
+
+def _jsonable(obj: Any) -> Any:
+    if isinstance(obj, dict):
+        return {str(k): _jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_jsonable(v) for v in obj]
+    if isinstance(obj, (dt.date, dt.datetime)):
+        return obj.isoformat()
+    if hasattr(obj, "item") and callable(obj.item):
+        return obj.item()
+    if isinstance(obj, float) and obj != obj:
+        return None
+    return obj
+
+
+def sites_digest(rows: list[dict]) -> str:
+    """SHA-256 of the site table (ids, roles, ranks, coordinates, dates, times), canonical JSON."""
+    keys = ("site_id", "stratum", "role", "reserve_rank", "visit_date", "planned_time", "x", "y")
+    canon = [[str(r.get(k, "")) for k in keys] for r in rows]
+    return hashlib.sha256(json.dumps(canon, separators=(",", ":")).encode()).hexdigest()
+
+
+def _relpath(path: Path, folder: Path) -> str:
+    try:
+        return Path(os.path.relpath(Path(path).resolve(), Path(folder).resolve())).as_posix()
+    except ValueError:  # another drive on Windows
+        return Path(path).resolve().as_posix()
+
+
+def manifest_data(design: Design, folder: Path, *, final_folder: Path | None = None,
+                  plan_path: Path | None = None, plan_sha256: str = "",
+                  outputs: dict[str, Path] | None = None,
+                  input_locations: dict[str, Path] | None = None) -> dict:
+    """The manifest as a dict. Paths are stored relative to ``final_folder`` (where the design will live)."""
+    from .export.table import schedule_rows
+    from .version import __version__
+
+    where = Path(final_folder or folder)
+    frame = design.frame
+    crs = frame.crs
+    epsg = crs.to_epsg() if hasattr(crs, "to_epsg") else None
+    locations = input_locations or {}
+    inputs = {
+        label: {"path": _relpath(Path(locations.get(label, info["path"])), where), "sha256": info["sha256"],
+                "as_written": info["path"]}
+        for label, info in sorted(design.inputs.items())
+    }
+    data = {
+        "format": "geosample-manifest/1",
+        "geosample_version": __version__,
+        "plan": ({"path": _relpath(plan_path, where), "sha256": plan_sha256} if plan_path else None),
+        "inputs": inputs,
+        "settings": design.settings,
+        "seed": str(design.seed),
+        "seed_source": design.seed_source,
+        "draw_count": design.draw_count,
+        "crs": {
+            "name": crs.name,
+            "epsg": epsg,
+            "wkt": crs.to_wkt(),
+            "reason": frame.crs_reason,
+        },
+        "frame": {
+            "water_area_m2": frame.water_area_m2,
+            "area_m2": frame.area_m2,
+            "strata": [{"name": s.name, "code": s.code, "area_m2": s.area_m2, "weight": s.weight}
+                       for s in frame.strata],
+            "removed": [asdict(r) for r in frame.removed],
+            "warnings": list(frame.warnings),
+        },
+        "allocation": asdict(design.allocation),
+        "draw": {"method": design.draw.method, "reserve": design.draw.reserve, "spacing_m": design.draw.spacing_m,
+                 "balance": design.draw.balance, "sites": len(design.draw.sites)},
+        "itinerary": {"travel_minutes_per_site": design.schedule.travel_minutes_per_site,
+                      "routes": len(design.schedule.routes)},
+        "sites_sha256": sites_digest(schedule_rows(design)),
+        "libraries": library_versions(),
+        "outputs": {name: sha256_file(p) for name, p in sorted((outputs or {}).items())},
+    }
+    return _jsonable(data)
+
+
+def write_manifest(design: Design, folder: str | Path, **kw: Any) -> Path:
+    """Write ``manifest.json`` into ``folder`` (deterministically: sorted keys, fixed layout)."""
+    folder = Path(folder)
+    data = manifest_data(design, folder, **kw)
+    path = folder / MANIFEST
+    path.write_text(json.dumps(data, indent=2, sort_keys=True, ensure_ascii=False) + "\n", encoding="utf-8")
+    return path
+
+
+def read_manifest(folder: str | Path) -> dict:
+    """Read a design folder's manifest, with clear errors for a folder that is not a design."""
+    folder = Path(folder)
+    path = folder / MANIFEST
+    if not folder.exists():
+        raise InputFileError(f"design folder {str(folder)!r} does not exist. Give the folder that "
+                             "'geosample plan ... -o FOLDER' wrote.")
+    if not path.exists():
+        raise InputFileError(f"{str(folder)!r} has no {MANIFEST}: it is not a design folder written by "
+                             "'geosample plan'.")
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (json.JSONDecodeError, UnicodeDecodeError) as exc:
+        raise InputFileError(f"{str(path)!r} is not a readable manifest ({exc}). It was edited or damaged; "
+                             "write the design again with 'geosample plan'.") from None
+
+
+# --------------------------------------------------------------------------- verify
+@dataclass(frozen=True)
+class Verification:
+    """The result of re-deriving a design: ``ok`` only if nothing differs."""
+
+    ok: bool
+    differences: tuple[str, ...]
+    checked: dict = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
+
+
+def _compare_rows(expected: list[dict], found: list[dict]) -> list[str]:
+    diffs: list[str] = []
+    exp = {r["site_id"]: r for r in expected}
+    got = {r.get("site_id", ""): r for r in found}
+    for sid in exp:
+        if sid not in got:
+            diffs.append(f"site {sid}: missing from schedule.csv")
+    for sid in got:
+        if sid not in exp:
+            diffs.append(f"site {sid}: in schedule.csv but not in the re-derived design")
+    for sid, e in exp.items():
+        g = got.get(sid)
+        if g is None:
+            continue
+        for key in ("stratum", "role", "reserve_rank", "visit_date", "planned_time", "lat", "lon", "x", "y"):
+            ev, gv = str(e.get(key, "")), str(g.get(key, ""))
+            if ev.startswith("'"):
+                ev = ev[1:]
+            if gv.startswith("'"):
+                gv = gv[1:]
+            if ev != gv:
+                what = "moved" if key in ("lat", "lon", "x", "y") else "changed"
+                diffs.append(f"site {sid}: {key} {what}: design says {ev!r}, schedule.csv has {gv!r}")
+    return diffs
+
+
+def verify(folder: str | Path, *, progress: Any = None) -> Verification:
+    """Re-derive the design in ``folder`` from its manifest and input files and compare.
+
+    Returns a :class:`Verification`; ``ok`` is True only if every input hash,
+    every site and time, and every output hash match.
+    """
+    import csv
+    import tempfile
+
+    from .design import load_layers, make_design
+    from .export import write_package
+    from .export.table import schedule_rows
+    from .plan import plan_from_settings
+
+    folder = Path(folder)
+    manifest = read_manifest(folder)
+    diffs: list[str] = []
+    notes: list[str] = []
+
+    # 1. inputs
+    inputs = manifest.get("inputs", {})
+    for label, info in inputs.items():
+        p = (folder / info["path"]).resolve()
+        if not p.exists():
+            raise InputFileError(f"input {label} ({info['path']!r}, relative to {str(folder)!r}) is missing; "
+                                 "verify needs the input layers where the manifest says they are.")
+        h = sha256_file(p)
+        if h != info["sha256"]:
+            diffs.append(f"input {label} ({info['path']}) changed: sha256 {h[:12]}... != recorded "
+                         f"{info['sha256'][:12]}...")
+    # 2. libraries
+    now = library_versions()
+    for name, ver in manifest.get("libraries", {}).items():
+        if now.get(name) != ver:
+            notes.append(f"library {name} is {now.get(name)} here; the design was made with {ver}")
+    if manifest.get("geosample_version"):
+        from .version import __version__
+
+        if manifest["geosample_version"] != __version__:
+            notes.append(f"geosample is {__version__} here; the design was made with {manifest['geosample_version']}")
+
+    # 3. re-derive
+    settings = json.loads(json.dumps(manifest["settings"]))
+    draw = settings.get("draw", {})
+    seed = int(manifest["seed"])
+    seed_source = manifest.get("seed_source", "plan")
+    for extra in ("seed_used", "seed_source"):
+        draw.pop(extra, None)
+    _restore_dates(settings)
+    # The layers are read where the manifest recorded them (relative to the design folder);
+    # the settings stay as written, so the re-rendered report is byte-identical.
+    label_paths = {label: (folder / info["path"]).resolve() for label, info in inputs.items()}
+    plan = plan_from_settings(settings, base_dir=folder)
+    layers = load_layers(plan, label_paths)
+    design = make_design(plan, layers=layers, seed=seed, seed_source=seed_source,
+                         draw_count=int(manifest.get("draw_count", 1)),
+                         inputs={k: {"path": v.get("as_written", v["path"]), "sha256": v["sha256"]}
+                                 for k, v in inputs.items()},
+                         progress=progress)
+    expected = schedule_rows(design)
+    sched = folder / "schedule.csv"
+    if sched.exists():
+        with open(sched, newline="", encoding="utf-8") as fh:
+            found = list(csv.DictReader(fh))
+        diffs += _compare_rows(expected, found)
+    else:
+        diffs.append("schedule.csv is missing from the design folder")
+    if sites_digest(expected) != manifest.get("sites_sha256"):
+        diffs.append("the re-derived sites and times differ from those the manifest records "
+                     "(sites_sha256); see the library notes")
+
+    # 4. outputs: as found in the folder, and as re-written now
+    recorded = manifest.get("outputs", {})
+    for name, h in recorded.items():
+        p = folder / name
+        if not p.exists():
+            diffs.append(f"output {name} is missing")
+        elif sha256_file(p) != h:
+            diffs.append(f"output {name} was altered after it was written (sha256 differs from the manifest)")
+    with tempfile.TemporaryDirectory(prefix="geosample-verify-") as tmp:
+        files = write_package(design, Path(tmp))
+        for name, p in files.items():
+            if name in recorded and sha256_file(p) != recorded[name]:
+                diffs.append(f"output {name} as re-derived differs from the one recorded in the manifest")
+    ok = not diffs
+    if diffs and notes:
+        diffs += [f"note: {n}" for n in notes]
+    return Verification(ok=ok, differences=tuple(diffs),
+                        checked={"inputs": len(inputs), "sites": len(expected), "outputs": len(recorded)},
+                        notes=tuple(notes))
+
+
+def _restore_dates(settings: dict) -> None:
+    t = settings.get("time", {})
+    for key in ("start", "end"):
+        if isinstance(t.get(key), str):
+            t[key] = dt.date.fromisoformat(t[key])
+    if isinstance(t.get("skip"), list):
+        t["skip"] = [dt.date.fromisoformat(d) if isinstance(d, str) else d for d in t["skip"]]

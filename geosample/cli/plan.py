@@ -1,0 +1,61 @@
+"""``geosample plan PLAN.toml -o OUT``: the whole design and its field package."""
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+
+from . import cli as group
+from ._common import command, echo_json
+
+
+@command(group, "plan", short_help="Draw sites and field times from a plan file; write the field package.")
+@click.argument("plan_file", metavar="PLAN.toml", type=click.Path(path_type=Path))
+@click.option("-o", "--out", "out", required=True, type=click.Path(path_type=Path),
+              help="Folder to write the design into (must not exist, unless --overwrite).")
+@click.option("--overwrite", is_flag=True, help="Replace OUT if it exists.")
+@click.option("--bundle-inputs", is_flag=True,
+              help="Copy the plan and its layers into OUT/inputs/ so the folder alone can be verified.")
+@click.option("--json", "as_json", is_flag=True, help="Print a summary as JSON.")
+def plan_command(plan_file: Path, out: Path, overwrite: bool, bundle_inputs: bool, as_json: bool) -> None:
+    """Build the sampling frame, size and allocate the effort, draw primary and
+    reserve sites and the field days and times, plan the day routes, and write
+    the field package into OUT: schedule.csv, sites.gpx, sites.geojson,
+    map.html, report.html and manifest.json.
+
+    Each run is added to the plan's draw record (PLAN.toml.draws.csv beside the
+    plan file); the report says how many draws this plan has had. Draw once.
+    """
+    from ..workflow import run_plan
+    from ._progress import steps
+
+    with steps("geosample plan") as progress:
+        run = run_plan(plan_file, out, overwrite=overwrite, progress=progress, bundle_inputs=bundle_inputs)
+    _summary(run, as_json)
+
+
+def _summary(run, as_json: bool) -> None:
+    d = run.design
+    a = d.allocation
+    primaries = sum(1 for s in d.draw.sites if s.role == "primary")
+    reserves = len(d.draw.sites) - primaries
+    days = sorted({v.visit_date for v in d.schedule.visits if v.visit_date})
+    if as_json:
+        echo_json({
+            "out": str(run.folder), "seed": str(d.seed), "seed_source": d.seed_source, "draw_count": d.draw_count,
+            "n": a.total, "allocation": a.as_dict(), "bound": a.bound, "error_bound": a.error_bound,
+            "achieved_tolerance": a.achieved_tolerance, "primary_sites": primaries, "reserve_sites": reserves,
+            "field_days": len(days), "files": sorted(run.files),
+        })
+        return
+    click.echo(f"Design written to {run.folder}/")
+    click.echo(f"  {a.total} primary sites and {reserves} reserves in {len(a.strata)} strata "
+               f"({', '.join(f'{k} {v}' for k, v in a.as_dict().items())}); {a.method} allocation, {a.bound} bound.")
+    if days:
+        click.echo(f"  {len(days)} field days from {days[0]} to {days[-1]}.")
+    click.echo(f"  Seed {d.seed} ({d.seed_source}); draw {d.draw_count} for this plan.")
+    if d.draw_count > 1:
+        click.echo("  Note: this plan has been drawn before. The report says so: re-drawing until the sites look "
+                   "convenient defeats the randomisation.")
+    click.echo("  Files: " + ", ".join(sorted(run.files)))
+    click.echo(f"  Check it any time with: geosample verify {run.folder}")

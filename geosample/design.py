@@ -1,0 +1,273 @@
+"""The whole design from a plan: frame -> sizing -> sites -> days and times -> routes.
+
+:func:`make_design` is the pure heart of ``geosample plan`` and ``geosample
+verify``: given the same plan, the same layers and the same seed it returns the
+same :class:`~geosample.model.Design`, to the last digit. It reads the layers
+through :func:`geosample.plan.load_layers` and writes nothing.
+"""
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Callable
+
+from .errors import SettingError
+from .model import Design, Frame
+from .plan import GENERATED_STRATA, Plan
+from .rng import fresh_seed, seed_from_text
+
+__all__ = ["make_design", "resolve_seed", "build_frame_from_plan", "allocation_from_plan", "Layers", "load_layers"]
+
+log = logging.getLogger(__name__)
+
+Progress = Callable[[str], None]
+
+
+@dataclass(frozen=True)
+class Layers:
+    """The plan's input layers, as read from disk (GeoDataFrames)."""
+
+    water: Any
+    exclude: tuple[tuple[str, Any], ...]
+    access: Any
+    strata: Any  # GeoDataFrame, a generated-strata keyword, or None
+
+
+def load_layers(plan: Plan, paths: dict[str, Path] | None = None) -> Layers:
+    """Read every layer the plan names (the file edge of the design).
+
+    ``paths`` maps input labels (``water``, ``exclude[0]``, ``access``, ``strata``)
+    to the files to read; by default the plan's own paths. ``verify`` passes the
+    locations the manifest recorded.
+    """
+    from .layers import read_layer
+
+    area = plan.settings["area"]
+    crs = area.get("crs")
+    where = dict(plan.input_paths())
+    where.update(paths or {})
+    water = read_layer(where["water"], layer=area.get("water_layer"), what="area.water", kind="polygon", crs=crs)
+    exclude = tuple(
+        (Path(p).name, read_layer(where[f"exclude[{i}]"], what=f"area.exclude[{i}]", kind="polygon", crs=crs))
+        for i, p in enumerate(area["exclude"])
+    )
+    access = None
+    if area.get("access"):
+        access = read_layer(where["access"], what="area.access", kind="point", crs=crs)
+    strata: Any = area.get("strata")
+    if strata and strata not in GENERATED_STRATA:
+        strata = read_layer(where["strata"], layer=area.get("strata_layer"), what="area.strata",
+                            kind="polygon", crs=crs)
+    return Layers(water, exclude, access, strata)
+
+
+def resolve_seed(settings: dict) -> tuple[int, str]:
+    """The root seed and where it came from: the plan's seed, its seed_text, or the OS."""
+    draw = settings["draw"]
+    if draw.get("seed") is not None:
+        return int(draw["seed"]), "plan"
+    if draw.get("seed_text"):
+        return seed_from_text(draw["seed_text"]), "text"
+    return fresh_seed(), "os"
+
+
+def build_frame_from_plan(plan: Plan, layers: Layers, *, progress: Progress | None = None) -> Frame:
+    from .geometry import build_frame
+
+    area = plan.settings["area"]
+    return build_frame(
+        layers.water,
+        exclude=layers.exclude,
+        access=layers.access,
+        reach_m=area.get("reach_m"),
+        shore_m=tuple(area["shore_m"]) if area.get("shore_m") else None,
+        strata=layers.strata,
+        strata_field=area.get("strata_field"),
+        bands_m=area.get("bands_m"),
+        zones=area.get("zones"),
+        remainder=area.get("remainder"),
+        access_snap_m=area.get("access_snap_m", 200.0),
+        progress=progress,
+    )
+
+
+def _per_stratum(size: dict, names: list[str], key: str) -> list[float] | float | None:
+    """Per-stratum values from [size.strata.NAME], falling back to the plan-wide value."""
+    tables = size.get("strata") or {}
+    unknown = sorted(set(tables) - set(names))
+    if unknown:
+        raise SettingError(f"size.strata.{unknown[0]}", unknown[0], "the name of a stratum of the frame: "
+                           + ", ".join(repr(n) for n in names),
+                           fix="rename the [size.strata.NAME] table to match the strata layer")
+    default = size.get(key)
+    values = [tables.get(n, {}).get(key, default) for n in names]
+    if all(v is None for v in values):
+        return None
+    if any(v is None for v in values):
+        if key == "cost":
+            return [1.0 if v is None else float(v) for v in values]
+        missing = [n for n, v in zip(names, values) if v is None]
+        raise SettingError(f"size.{key}", None, f"a {key} for every stratum (missing for {', '.join(missing)})",
+                           fix=f"set size.{key} for the whole plan or [size.strata.NAME] {key} for each")
+    return [float(v) for v in values]
+
+
+def allocation_from_plan(plan: Plan, frame: Frame):
+    """Size and allocate the primary samples over the frame's strata."""
+    from .stats.sizing import allocate
+
+    size = plan.settings["size"]
+    names = [s.name for s in frame.strata]
+    return allocate(
+        [s.weight for s in frame.strata],
+        strata=names,
+        n=size.get("n"),
+        tolerance=size.get("tolerance") if size.get("n") is None else size.get("tolerance"),
+        method=size["allocation"],
+        sd=_per_stratum(size, names, "sd"),
+        range=_per_stratum(size, names, "range"),
+        cost=_per_stratum(size, names, "cost"),
+        min_per_stratum=size["min_per_stratum"],
+        bound=size["bound"],
+        confidence=size["confidence"],
+        sides=size["sides"],
+    )
+
+
+def _sizing_summary(plan: Plan, frame: Frame, allocation) -> dict:
+    """What the report needs to explain the total (formula, inputs, guarantee)."""
+    from .stats import sizing
+
+    size = plan.settings["size"]
+    survey = plan.settings["survey"]
+    names = [s.name for s in frame.strata]
+    sd = _per_stratum(size, names, "sd")
+    rng_ = _per_stratum(size, names, "range")
+    cost = _per_stratum(size, names, "cost")
+    per = []
+    for i, s in enumerate(frame.strata):
+        per.append({
+            "name": s.name, "code": s.code, "weight": s.weight, "area_m2": s.area_m2, "n": allocation.n[i],
+            "sd": None if sd is None else sd[i], "range": None if rng_ is None else rng_[i],
+            "cost": None if cost is None else cost[i],
+        })
+    assumption = sizing.ASSUMPTIONS.get(size["bound"], "") if hasattr(sizing, "ASSUMPTIONS") else ""
+    conf = allocation.confidence
+    tol = allocation.achieved_tolerance
+    units = survey.get("units") or ""
+    scale = " (log10 units)" if survey["statistic"] == "geomean" else ""
+    if tol is not None:
+        guarantee = (
+            f"With {allocation.total} primary samples allocated as shown, the {size['bound']} bound guarantees that "
+            f"the procedure gives an interval of half-width at most {tol:.3g} {units}{scale} that contains the true "
+            f"{'geometric ' if survey['statistic'] == 'geomean' else ''}mean with probability at least "
+            f"{1 - allocation.error_bound:.2%} (error probability at most {allocation.error_bound:.4f})."
+        )
+    else:
+        guarantee = f"{allocation.total} primary samples; error probability at most {allocation.error_bound:.4f}."
+    formula = getattr(sizing, "FORMULAS", {}).get(size["bound"], "") if hasattr(sizing, "FORMULAS") else ""
+    return {
+        "formula": formula,
+        "inputs": {k: size.get(k) for k in ("tolerance", "range", "sd", "confidence", "bound", "sides",
+                                            "allocation", "min_per_stratum", "n")},
+        "per_stratum": per,
+        "guarantee": guarantee,
+        "assumption": assumption,
+        "statistic": survey["statistic"],
+        "tolerance_factor": (10 ** size["tolerance"]) if survey["statistic"] == "geomean" and size.get("tolerance")
+        else None,
+    }
+
+
+def _frame_lonlat(frame: Frame) -> tuple[float, float]:
+    from pyproj import Transformer
+
+    c = frame.water.centroid if frame.water is not None else frame.strata[0].geometry.centroid
+    t = Transformer.from_crs(frame.crs, "EPSG:4326", always_xy=True)
+    lon, lat = t.transform(c.x, c.y)
+    return float(lon), float(lat)
+
+
+def make_design(
+    plan: Plan,
+    *,
+    layers: Layers | None = None,
+    seed: int | None = None,
+    seed_source: str | None = None,
+    draw_count: int = 1,
+    inputs: dict | None = None,
+    progress: Progress | None = None,
+) -> Design:
+    """Run every stage of the design.
+
+    Parameters
+    ----------
+    plan : Plan
+        A validated plan (:func:`geosample.plan.load_plan`).
+    layers : Layers, optional
+        The plan's layers; read from disk when not given.
+    seed : int, optional
+        The root seed; without it the plan's seed (or seed_text) is used, else a
+        fresh one is drawn from the OS. The seed used is in ``Design.seed``.
+    draw_count : int
+        How many draws the draw record holds for this plan (for the report).
+    progress : callable, optional
+        Called with the name of each step as it starts.
+
+    Returns
+    -------
+    Design
+    """
+    from .itinerary import build_itinerary
+    from .randomizer.space import draw_sites
+    from .randomizer.time import field_days, schedule_visits
+
+    step = progress or (lambda name: None)
+    settings = {k: dict(v) for k, v in plan.settings.items()}
+    if seed is None:
+        seed, seed_source = resolve_seed(settings)
+    settings["draw"]["seed"] = int(seed) if seed_source != "text" else None
+    settings["draw"]["seed_used"] = str(seed)
+    settings["draw"]["seed_source"] = seed_source or "given"
+
+    step("reading layers")
+    if layers is None:
+        layers = load_layers(plan)
+    step("building the frame")
+    frame = build_frame_from_plan(plan, layers, progress=progress)
+    step("sizing and allocating")
+    allocation = allocation_from_plan(plan, frame)
+    step("drawing sites")
+    d = settings["draw"]
+    draw = draw_sites(frame, allocation, method=d["method"], reserve=d["reserve"], spacing_m=d.get("spacing_m"),
+                      seed=seed)
+    step("drawing field days and times")
+    t = settings["time"]
+    lon, lat = _frame_lonlat(frame)
+    days = field_days(t["start"], t["end"], weekdays=t["days"], skip=t["skip"], window=t["window"],
+                      timezone=settings["survey"]["timezone"], lat=lat, lon=lon, temporal=t["temporal"])
+    day_tuple = getattr(days, "days", days)
+    day_warnings = tuple(getattr(days, "warnings", ()))
+    schedule = schedule_visits(draw, day_tuple, per_day=t["per_day"], seed=seed,
+                               minutes_on_site=t["minutes_on_site"])
+    step("planning day routes")
+    schedule = build_itinerary(schedule, frame, speed_kmh=t["speed_kmh"], minutes_on_site=t["minutes_on_site"],
+                               holding_h=t["holding_h"], lab_minutes=t["lab_minutes"], seed=seed)
+    if day_warnings:
+        from dataclasses import replace
+
+        schedule = replace(schedule, warnings=tuple(schedule.warnings) + day_warnings)
+    sizing = _sizing_summary(plan, frame, allocation)
+    return Design(
+        settings=settings,
+        frame=frame,
+        allocation=allocation,
+        draw=draw,
+        schedule=schedule,
+        sizing=sizing,
+        seed=int(seed),
+        seed_source=seed_source or "given",
+        draw_count=draw_count,
+        inputs=dict(inputs or {}),
+    )
