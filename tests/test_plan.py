@@ -1,0 +1,195 @@
+"""The plan file loader: defaults, validation messages, path resolution (geosample/plan.py)."""
+from __future__ import annotations
+
+import datetime as dt
+import tomllib
+from pathlib import Path
+
+import pytest
+
+from geosample.errors import GeosampleError, InputFileError, PlanError, SettingError
+from geosample.plan import SCHEMA, load_plan, load_plan_text, schema_markdown
+
+MINIMAL = """
+[survey]
+title = "Test survey"
+timezone = "America/Chicago"
+[area]
+water = "water.geojson"
+[size]
+tolerance = 15
+range = 80
+[time]
+start = 2027-06-01
+end = 2027-08-31
+"""
+
+
+def load(text: str):
+    return load_plan_text(text, base_dir="/tmp/plans", source="plan.toml")
+
+
+def test_minimal_plan_gets_the_design_defaults():
+    s = load(MINIMAL).settings
+    assert s["size"]["confidence"] == 0.95
+    assert s["size"]["bound"] == "chebyshev"
+    assert s["size"]["sides"] == "two"
+    assert s["draw"]["method"] == "balanced"
+    assert s["draw"]["reserve"] == 0.5
+    assert s["time"]["days"] == ["mon", "tue", "wed", "thu", "fri"]
+    assert s["time"]["window"] == ["sunrise+60", "sunset-120"]
+    assert s["time"]["start"] == dt.date(2027, 6, 1)
+    assert s["area"]["exclude"] == []
+
+
+def test_the_design_documents_example_plan_is_accepted():
+    # The plan of DESIGN.md's "Plan file (TOML)" section, key for key (dates inline).
+    text = """
+[survey]
+title = "Summer indicator bacteria survey"
+parameter = "E. coli"
+units = "MPN/100 mL"
+statistic = "mean"
+criterion = 126
+timezone = "America/Chicago"
+[area]
+water = "water.geojson"
+exclude = ["closed.geojson"]
+access = "access.geojson"
+reach_m = 4000
+shore_m = [0, 1000]
+strata = "zones.geojson"
+strata_field = "zone"
+[size]
+tolerance = 15
+range = 80
+confidence = 0.95
+bound = "chebyshev"
+sides = "two"
+allocation = "proportional"
+min_per_stratum = 2
+[size.strata.north]
+sd = 12
+[draw]
+method = "balanced"
+reserve = 0.5
+spacing_m = 100
+seed = 20270601
+[time]
+start = 2027-06-01
+end = 2027-08-31
+days = ["mon", "tue", "wed", "thu", "fri"]
+skip = [2027-07-05]
+window = ["sunrise+60", "sunset-120"]
+per_day = 8
+speed_kmh = 15
+minutes_on_site = 15
+holding_h = 6
+lab_minutes = 40
+"""
+    plan = load(text)
+    assert plan.settings["size"]["strata"] == {"north": {"sd": 12}}
+    assert plan.input_paths()["exclude[0]"] == Path("/tmp/plans/closed.geojson")
+    assert plan.input_names()["strata"] == "zones.geojson"
+
+
+def test_unknown_key_suggests_the_close_one():
+    with pytest.raises(PlanError, match=r"size\.tolerence.*Did you mean 'tolerance'"):
+        load(MINIMAL.replace("tolerance = 15", "tolerence = 15"))
+
+
+def test_unknown_section_suggests_the_close_one():
+    with pytest.raises(PlanError, match=r"\[sizes\].*Did you mean 'size'"):
+        load(MINIMAL.replace("[size]", "[sizes]"))
+
+
+@pytest.mark.parametrize(
+    "old,new,setting",
+    [
+        ("range = 80", 'range = "80"', "size.range"),
+        ("range = 80", "range = -3", "size.range"),
+        ("tolerance = 15", "tolerance = 0", "size.tolerance"),
+        ('timezone = "America/Chicago"', 'timezone = "Mars/Olympus"', "survey.timezone"),
+        ("end = 2027-08-31", 'end = "2027-08-31"', "time.end"),
+        ("[time]", "[time]\nper_day = 2.5", "time.per_day"),
+        ("[time]", '[time]\ndays = ["mon", "funday"]', "time.days"),
+        ("[size]", "[size]\nconfidence = 95", "size.confidence"),
+        ("[size]", '[size]\nbound = "chebychev"', "size.bound"),
+    ],
+)
+def test_wrong_values_name_the_key_and_value(old, new, setting):
+    with pytest.raises(SettingError) as info:
+        load(MINIMAL.replace(old, new))
+    assert info.value.setting == setting
+    assert setting in str(info.value)
+    assert isinstance(info.value, ValueError)  # the builtin it also inherits
+
+
+def test_reversed_dates_say_so():
+    text = MINIMAL.replace("start = 2027-06-01", "start = 2027-09-01")
+    with pytest.raises(SettingError, match="reversed"):
+        load(text)
+
+
+def test_missing_required_key_names_it():
+    with pytest.raises(PlanError, match=r"\[area\] needs water"):
+        load(MINIMAL.replace('water = "water.geojson"', ""))
+
+
+def test_toml_syntax_error_is_a_plan_error():
+    with pytest.raises(PlanError, match="not valid TOML"):
+        load(MINIMAL + "\nthis is not toml")
+
+
+def test_chebyshev_without_range_is_refused():
+    with pytest.raises(SettingError, match="size.range"):
+        load(MINIMAL.replace("range = 80", ""))
+
+
+def test_cantelli_two_sided_is_refused_with_the_fix():
+    with pytest.raises(SettingError, match='sides = "one"'):
+        load(MINIMAL.replace("[size]", '[size]\nbound = "cantelli"'))
+
+
+def test_missing_plan_file_is_an_oserror(tmp_path):
+    with pytest.raises(InputFileError) as info:
+        load_plan(tmp_path / "nope.toml")
+    assert isinstance(info.value, OSError)
+    assert "nope.toml" in str(info.value)
+
+
+def test_paths_resolve_relative_to_the_plan_file(tmp_path):
+    sub = tmp_path / "survey"
+    sub.mkdir()
+    (sub / "plan.toml").write_text(MINIMAL.replace("water.geojson", "layers/water.geojson"))
+    plan = load_plan(sub / "plan.toml")
+    assert plan.input_paths()["water"] == (sub / "layers" / "water.geojson").resolve()
+    assert len(plan.sha256) == 64
+
+
+def test_every_error_is_a_geosample_error():
+    for text in (MINIMAL.replace("[size]", "[sise]"), MINIMAL.replace("range = 80", "range = []")):
+        with pytest.raises(GeosampleError):
+            load(text)
+
+
+def test_schema_reference_lists_every_key():
+    md = schema_markdown()
+    for section, keys in SCHEMA.items():
+        assert f"## [{section}]" in md
+        for key in keys:
+            assert f"| `{key}` |" in md
+
+
+def test_docs_plan_reference_is_up_to_date():
+    doc = Path(__file__).resolve().parents[1] / "docs" / "plan-file.md"
+    assert doc.read_text() == schema_markdown(), "regenerate: python -m geosample.plan > docs/plan-file.md"
+
+
+def test_defaults_are_valid_toml_values():
+    # Every default must itself pass the key's check (so a written-out plan reloads).
+    for section, keys in SCHEMA.items():
+        for key, spec in keys.items():
+            if spec.default is not None and not spec.required:
+                assert spec.check(spec.default), f"{section}.{key} default {spec.default!r}"
+    tomllib.loads(MINIMAL)
