@@ -1,0 +1,663 @@
+"""Field days become crew trips over water: routes, planned times, holding-time checks.
+
+:func:`build_itinerary` takes the :class:`~geosample.model.Schedule` made by
+``randomizer.time.schedule_visits`` (every primary visit has a field day) and the
+:class:`~geosample.model.Frame`, and returns a new Schedule in which each field
+day's primary visits are put in route order, given planned times that follow
+from the travel speed and the minutes spent on each site, and joined into
+routes that leave from an access point and come back to it.
+
+The model, in brief (``docs/methods.md``, "Day routes and holding time"):
+
+- **Access point.** Of the frame's access points (the 12 with the smallest
+  summed over-water distance to the day's sites, when there are more), the one
+  whose closed route through the day's sites is shortest.
+- **Order.** A closed tour from the access point through the sites: Christofides'
+  heuristic (``networkx``), improved by 2-opt exchanges until none shortens it.
+  The direction of travel is drawn at random (the other direction is taken
+  only when the drawn one does not fit the window: the return leg is not
+  part of the window, so the two directions can differ).
+- **Times.** Travel takes ``distance / speed``; each site takes
+  ``minutes_on_site``. A visit's planned time is the arrival at the site (the
+  start of the sampling). The crew leaves the access point no earlier than the
+  window opens and finishes its last sampling no later than it closes; the
+  leaving time is drawn uniformly over the slack that leaves.
+- **Holding time.** The oldest sample of a trip is its first one; it must reach
+  the lab within ``holding_h``: (return to the access point - first planned
+  time) + ``lab_minutes`` <= ``holding_h`` * 60. A day that cannot meet it is
+  split into consecutive trips along the same tour, each returning to the
+  access point, where a courier takes the samples to the lab and the crew sets
+  out again at once. A single site too far to meet it is reported with the figures.
+- **A day that does not fit its window** cannot be fixed by more trips of the
+  same crew (each extra return only adds travel), so it raises
+  :class:`~geosample.errors.InfeasibleError` with the figures.
+"""
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+import logging
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from .errors import InfeasibleError, SettingError
+from .model import AccessPoint, FieldDay, Frame, Route, Schedule, Visit
+from .rng import stream
+
+__all__ = [
+    "build_itinerary",
+    "closed_tour",
+    "tour_length",
+    "two_opt",
+    "STRAIGHT_LINE_WARNING",
+    "MAX_ACCESS_CANDIDATES",
+]
+
+log = logging.getLogger(__name__)
+
+STRAIGHT_LINE_WARNING = "Over-water distances were not available; routes use straight lines"
+MAX_ACCESS_CANDIDATES = 12
+_MORNING_HOUR = 10.0
+
+
+# --------------------------------------------------------------------------- tours
+def tour_length(dist: np.ndarray, tour: Sequence[int]) -> float:
+    """Length of the closed tour ``tour`` (back to its first node) under ``dist``.
+
+    Examples
+    --------
+    >>> d = np.array([[0, 1, 2], [1, 0, 1], [2, 1, 0]], dtype=float)
+    >>> tour_length(d, [0, 1, 2])
+    4.0
+    """
+    t = np.asarray(tour, dtype=int)
+    if t.size < 2:
+        return 0.0
+    return float(dist[t, np.roll(t, -1)].sum())
+
+
+def two_opt(dist: np.ndarray, tour: Sequence[int]) -> tuple[int, ...]:
+    """Improve a closed tour by 2-opt exchanges until no exchange shortens it.
+
+    The first node stays first. Each exchange reverses the segment ``tour[i..j]``
+    when ``d(a, b) + d(c, e) > d(a, c) + d(b, e)`` for the edges ``(a, b)`` and
+    ``(c, e)`` around it (first improvement, scanned in a fixed order, so the
+    result depends only on the input).
+
+    Parameters
+    ----------
+    dist : (n, n) ndarray
+        Distances; need not be symmetric in principle, but the gain is computed
+        as if it were (reversing a segment keeps its inner edges' lengths).
+    tour : sequence of int
+        A permutation of ``range(n)``.
+
+    Returns
+    -------
+    tuple of int
+    """
+    t = list(tour)
+    n = len(t)
+    if n < 4:
+        return tuple(t)
+    improved = True
+    while improved:
+        improved = False
+        for i in range(1, n - 1):
+            for j in range(i + 1, n):
+                a, b = t[i - 1], t[i]
+                c, e = t[j], t[(j + 1) % n]
+                if a == c or b == e:
+                    continue
+                gain = dist[a, b] + dist[c, e] - dist[a, c] - dist[b, e]
+                if gain > 1e-9 * (1.0 + abs(dist[a, b]) + abs(dist[c, e])):
+                    t[i : j + 1] = t[i : j + 1][::-1]
+                    improved = True
+    return tuple(t)
+
+
+def closed_tour(dist: np.ndarray) -> tuple[int, ...]:
+    """A short closed tour through every node, starting at node 0.
+
+    Christofides' heuristic (``networkx.algorithms.approximation.christofides``;
+    at most 3/2 times the optimum when ``dist`` is a metric, Christofides 1976),
+    then :func:`two_opt`. The tour is returned without repeating node 0 at the end.
+
+    Parameters
+    ----------
+    dist : (n, n) ndarray
+        Symmetric, finite, zero diagonal.
+
+    Returns
+    -------
+    tuple of int
+        A permutation of ``range(n)`` with 0 first.
+
+    Examples
+    --------
+    >>> xy = np.array([[0, 0], [0, 1], [1, 1], [1, 0]], dtype=float)
+    >>> d = np.hypot(*(xy[:, None, :] - xy[None, :, :]).transpose(2, 0, 1))
+    >>> tour_length(d, closed_tour(d))
+    4.0
+    """
+    n = dist.shape[0]
+    if n <= 3:
+        return tuple(range(n))
+    import networkx as nx
+    from networkx.algorithms.approximation import christofides
+
+    graph = nx.Graph()
+    graph.add_nodes_from(range(n))
+    # Built edge by edge: nx.from_numpy_array would drop zero-length edges.
+    graph.add_weighted_edges_from(
+        (i, j, float(dist[i, j])) for i in range(n) for j in range(i + 1, n)
+    )
+    cycle = christofides(graph, weight="weight")[:-1]
+    k = cycle.index(0)
+    start = cycle[k:] + cycle[:k]
+    return two_opt(dist, start)
+
+
+# --------------------------------------------------------------------------- distances
+def _euclidean(xy: np.ndarray) -> np.ndarray:
+    diff = xy[:, None, :] - xy[None, :, :]
+    return np.hypot(diff[..., 0], diff[..., 1])
+
+
+def _distances(router: Any, xy: np.ndarray) -> np.ndarray:
+    """Over-water distances from the router, or straight lines without one."""
+    if router is None:
+        return _euclidean(xy)
+    d = np.asarray(router.distance_matrix(xy), dtype=float)
+    if d.shape != (len(xy), len(xy)):
+        raise ValueError(f"router.distance_matrix returned shape {d.shape}, expected {(len(xy),) * 2}")
+    return d
+
+
+def _path(router: Any, xy: np.ndarray, nodes: Sequence[int]) -> tuple[tuple[float, float], ...]:
+    """The polyline through ``nodes`` in order: router paths joined, or straight lines."""
+    out: list[tuple[float, float]] = [(float(xy[nodes[0], 0]), float(xy[nodes[0], 1]))]
+    for a, b in zip(nodes[:-1], nodes[1:]):
+        if router is None or a == b:
+            seg = [tuple(xy[a]), tuple(xy[b])]
+        else:
+            seg = list(router.path(tuple(map(float, xy[a])), tuple(map(float, xy[b]))))
+        out.extend((float(p[0]), float(p[1])) for p in seg[1:])
+    return tuple(out)
+
+
+# --------------------------------------------------------------------------- trips
+@dataclass(frozen=True)
+class _Trip:
+    """One trip of a day: sites in order, with times in minutes from the day's start."""
+
+    nodes: tuple[int, ...]  # matrix indices of the sites sampled, in order
+    leave: float  # minutes from the day's first departure
+    arrive: tuple[float, ...]  # planned time (arrival) at each node
+    back: float  # return at the depot
+    length_m: float
+    holding_min: float  # first sample to lab
+    samples_depot: bool = False  # the depot is a site sampled at the start
+
+
+def _time_trip(
+    dist: np.ndarray, nodes: Sequence[int], leave: float, m_per_min: float, on_site: float,
+    lab_minutes: float, *, samples_depot: bool = False,
+) -> _Trip:
+    """Times along one trip from the depot (node 0) through ``nodes`` and back.
+
+    When ``samples_depot`` the depot is itself a site, sampled first on leaving.
+    """
+    t = leave
+    pos = 0
+    arrive: list[float] = []
+    length = 0.0
+    visited = ((0,) if samples_depot else ()) + tuple(nodes)
+    for n in visited:
+        t += dist[pos, n] / m_per_min
+        length += dist[pos, n]
+        arrive.append(t)
+        t += on_site
+        pos = n
+    length += dist[pos, 0]
+    back = t + dist[pos, 0] / m_per_min
+    holding = back - arrive[0] + lab_minutes if arrive else 0.0
+    return _Trip(visited, leave, tuple(arrive), back, float(length), holding, samples_depot)
+
+
+def _split_for_holding(
+    dist: np.ndarray, order: Sequence[int], m_per_min: float, on_site: float,
+    lab_minutes: float, limit_min: float, *, samples_depot: bool,
+) -> list[tuple[tuple[int, ...], bool]]:
+    """Cut the tour ``order`` (without the depot) into consecutive trips meeting the holding time.
+
+    Greedy: each trip takes as many of the next sites as still meet it (with a
+    metric, adding a site never shortens a trip, so this gives the fewest trips
+    along this tour). Returns ``(nodes, first_trip)`` pairs.
+    """
+
+    def holding(nodes: tuple[int, ...], first: bool) -> float:
+        return _time_trip(dist, nodes, 0.0, m_per_min, on_site, lab_minutes,
+                          samples_depot=samples_depot and first).holding_min
+
+    trips: list[tuple[int, ...]] = []
+    current: tuple[int, ...] = ()
+    for node in order:
+        first = not trips
+        if not current and not (samples_depot and first):
+            current = (node,)
+            continue
+        if holding(current + (node,), first) <= limit_min + 1e-9:
+            current = current + (node,)
+        else:
+            trips.append(current)
+            current = (node,)
+    if current or not trips:
+        trips.append(current)
+    return [(nodes, i == 0) for i, nodes in enumerate(trips)]
+
+
+# --------------------------------------------------------------------------- one day
+@dataclass(frozen=True)
+class _DayPlan:
+    day_index: int
+    access: AccessPoint | None
+    xy: np.ndarray  # depot first, then the sites (or the sites, first one the depot)
+    site_ids: tuple[str, ...]  # per matrix row; "" for an access depot
+    dist: np.ndarray
+    trips: tuple[_Trip, ...]
+    start: dt.datetime
+    candidates: int
+
+
+def _depot_first(day_visits: Sequence[Visit]) -> list[Visit]:
+    """The day's visits with the one the time module put first at the front."""
+    def key(v: Visit) -> tuple:
+        t = v.planned_time
+        return (0, t.timestamp(), v.site_id) if t is not None else (1, 0.0, v.site_id)
+
+    first = min(day_visits, key=key)
+    return [first] + [v for v in day_visits if v is not first]
+
+
+def _choose_access(
+    access: Sequence[AccessPoint], sites_xy: np.ndarray, router: Any
+) -> tuple[AccessPoint, np.ndarray, tuple[int, ...], int]:
+    """The access point with the shortest closed tour; its matrix and tour."""
+    acc_xy = np.array([[a.x, a.y] for a in access], dtype=float)
+    k = len(sites_xy)
+    allxy = np.vstack([acc_xy, sites_xy])
+    full = _distances(router, allxy)
+    m = len(access)
+    to_sites = full[:m, m:]
+    reachable = np.all(np.isfinite(to_sites), axis=1)
+    if not reachable.any():
+        raise InfeasibleError(
+            f"no access point reaches all {k} sites of this field day over water "
+            f"(access points tried: {', '.join(a.name for a in access)}). "
+            "Check area.access and area.reach_m, or remove the unreachable water from the frame."
+        )
+    score = np.where(reachable, to_sites.sum(axis=1), np.inf)
+    cand = [int(i) for i in np.argsort(score, kind="stable")[: min(MAX_ACCESS_CANDIDATES, int(reachable.sum()))]]
+    best: tuple[float, int, np.ndarray, tuple[int, ...]] | None = None
+    for i in sorted(cand):
+        idx = np.r_[i, m + np.arange(k)]
+        d = full[np.ix_(idx, idx)]
+        tour = closed_tour(d)
+        length = tour_length(d, tour)
+        if best is None or length < best[0] - 1e-9:
+            best = (length, i, d, tour)
+    assert best is not None
+    _, i, d, tour = best
+    return access[i], d, tour, len(cand)
+
+
+def _plan_day(
+    day_index: int, day: FieldDay, day_visits: Sequence[Visit], frame: Frame, *,
+    m_per_min: float, on_site: float, lab_minutes: float, limit_min: float,
+    reverse: bool, u_start: float, max_day_minutes: float | None,
+) -> _DayPlan:
+    router = frame.router
+    if frame.access:
+        sites_xy = np.array([[v.x, v.y] for v in day_visits], dtype=float)
+        acc, dist, tour, ncand = _choose_access(frame.access, sites_xy, router)
+        xy = np.vstack([[acc.x, acc.y], sites_xy])
+        ids = ("",) + tuple(v.site_id for v in day_visits)
+        samples_depot = False
+    else:
+        ordered = _depot_first(day_visits)
+        xy = np.array([[v.x, v.y] for v in ordered], dtype=float)
+        dist = _distances(router, xy)
+        if not np.all(np.isfinite(dist)):
+            raise InfeasibleError(
+                f"on {day.date} some of the day's sites cannot be reached from one another over water; "
+                "give area.access points, or remove the unreachable water from the frame."
+            )
+        tour = closed_tour(dist)
+        ids = tuple(v.site_id for v in ordered)
+        acc, ncand, samples_depot = None, 0, True
+    window = (day.window_end - day.window_start).total_seconds() / 60.0
+    forward = list(tour[1:])
+    first_try = forward[::-1] if reverse else forward
+    options = [first_try, first_try[::-1]]
+    timed = [_time_day(dist, o, m_per_min, on_site, lab_minutes, limit_min, samples_depot) for o in options]
+    fits = [_span(tr, on_site) <= window + 1e-9 for tr in timed]
+    # The random direction is kept unless only the other one fits the window
+    # (when neither fits, the figures reported are the shorter one's).
+    if fits[0]:
+        trips = timed[0]
+    elif fits[1]:
+        trips = timed[1]
+    else:
+        trips = min(timed, key=lambda tr: _span(tr, on_site))
+    span = _span(trips, on_site)
+    if span > window + 1e-9:
+        km = sum(tr.length_m for tr in trips) / 1000.0
+        raise InfeasibleError(
+            f"field day {day.date}: {len(day_visits)} visits need {span:.0f} min from leaving "
+            f"{'access point ' + acc.name if acc else 'the first site'} to the end of the last sampling "
+            f"({km:.1f} km at time.speed_kmh = {m_per_min * 60 / 1000:g}, "
+            f"{on_site:g} min on each site, {len(trips)} trip(s)), but the sampling window "
+            f"{day.window_start:%H:%M}-{day.window_end:%H:%M} lasts {window:.0f} min. "
+            "Lower time.per_day, widen time.window, or raise time.speed_kmh."
+        )
+    total = trips[-1].back
+    if max_day_minutes is not None and total > max_day_minutes + 1e-9:
+        raise InfeasibleError(
+            f"field day {day.date}: the crew's day from leaving to the last return takes "
+            f"{total:.0f} min ({len(trips)} trip(s)), over max_day_minutes = {max_day_minutes:g}. "
+            "Lower time.per_day, or allow a longer crew day."
+        )
+    start = day.window_start + dt.timedelta(minutes=u_start * (window - span))
+    return _DayPlan(day_index, acc, xy, ids, dist, tuple(trips), start, ncand)
+
+
+def _time_day(
+    dist: np.ndarray, order: Sequence[int], m_per_min: float, on_site: float,
+    lab_minutes: float, limit_min: float, samples_depot: bool,
+) -> tuple[_Trip, ...]:
+    """The day's trips along ``order``, one after the other from minute 0."""
+    pieces = _split_for_holding(dist, order, m_per_min, on_site, lab_minutes, limit_min,
+                                samples_depot=samples_depot)
+    trips: list[_Trip] = []
+    t = 0.0
+    for nodes, first in pieces:
+        trip = _time_trip(dist, nodes, t, m_per_min, on_site, lab_minutes,
+                          samples_depot=samples_depot and first)
+        trips.append(trip)
+        t = trip.back
+    return tuple(trips)
+
+
+def _span(trips: Sequence[_Trip], on_site: float) -> float:
+    """Minutes from the first departure to the end of the last sampling."""
+    return trips[-1].arrive[-1] + on_site
+
+
+# --------------------------------------------------------------------------- summaries
+def marginal_minutes(dist: np.ndarray, trip_nodes: Sequence[int], m_per_min: float) -> list[float]:
+    """Travel minutes the trip saves if each of its sites were left out.
+
+    For a site ``s`` between ``p`` and ``q`` on a closed trip from the depot
+    (node 0): ``(d(p, s) + d(s, q) - d(p, q)) / speed``. A lone site costs the
+    whole round trip. This is the marginal travel cost of a sample.
+    """
+    seq = [0] + [n for n in trip_nodes if n != 0] + [0]
+    out = []
+    for i in range(1, len(seq) - 1):
+        p, s, q = seq[i - 1], seq[i], seq[i + 1]
+        out.append(float(dist[p, s] + dist[s, q] - dist[p, q]) / m_per_min)
+    return out
+
+
+def _local_hour(t: dt.datetime) -> float:
+    return t.hour + t.minute / 60.0 + t.second / 3600.0
+
+
+def _simple_time_of_day(visits: Sequence[Visit]) -> dict[str, dict[str, float]]:
+    """Per stratum: earliest, median and latest local hour of the planned times, share before 10:00."""
+    by: dict[str, list[float]] = {}
+    for v in visits:
+        if v.role == "primary" and v.planned_time is not None:
+            by.setdefault(v.stratum, []).append(_local_hour(v.planned_time))
+    out = {}
+    for name, hours in by.items():
+        h = np.array(hours)
+        out[name] = {
+            "n": float(h.size),
+            "earliest_h": float(h.min()),
+            "median_h": float(np.median(h)),
+            "latest_h": float(h.max()),
+            "share_before_10": float(np.mean(h < _MORNING_HOUR)),
+        }
+    return out
+
+
+def _time_of_day(visits: Sequence[Visit]) -> dict[str, dict[str, float]]:
+    try:
+        from .randomizer.time import time_of_day_summary  # type: ignore[attr-defined]
+    except ImportError:
+        return _simple_time_of_day(visits)
+    return time_of_day_summary(visits)
+
+
+# --------------------------------------------------------------------------- checks
+def _check(setting: str, value: Any, ok: bool, accepted: str, fix: str) -> None:
+    if not ok:
+        raise SettingError(setting, value, accepted, fix=fix)
+
+
+def _is_number(x: Any) -> bool:
+    return isinstance(x, (int, float, np.integer, np.floating)) and not isinstance(x, bool) and math.isfinite(x)
+
+
+def _validate(speed_kmh, minutes_on_site, holding_h, lab_minutes, max_day_minutes) -> None:
+    _check("time.speed_kmh", speed_kmh, _is_number(speed_kmh) and speed_kmh > 0,
+           "a travel speed in km/h greater than 0", "write e.g. speed_kmh = 15")
+    _check("time.minutes_on_site", minutes_on_site, _is_number(minutes_on_site) and minutes_on_site >= 0,
+           "minutes spent at each site, 0 or more", "write e.g. minutes_on_site = 15")
+    _check("time.holding_h", holding_h, _is_number(holding_h) and holding_h > 0,
+           "hours from collection to lab delivery, greater than 0", "write e.g. holding_h = 6")
+    _check("time.lab_minutes", lab_minutes, _is_number(lab_minutes) and lab_minutes >= 0,
+           "minutes from the access point to the lab, 0 or more", "write e.g. lab_minutes = 40")
+    if max_day_minutes is not None:
+        _check("max_day_minutes", max_day_minutes, _is_number(max_day_minutes) and max_day_minutes > 0,
+               "the longest crew day in minutes, greater than 0, or None", "leave it out for no limit")
+
+
+# --------------------------------------------------------------------------- main
+def build_itinerary(
+    schedule: Schedule,
+    frame: Frame,
+    *,
+    speed_kmh: float = 15,
+    minutes_on_site: float = 15,
+    holding_h: float = 6,
+    lab_minutes: float = 40,
+    seed: int | np.random.SeedSequence,
+    max_day_minutes: float | None = None,
+) -> Schedule:
+    """Routes, route order and planned times for every field day of ``schedule``.
+
+    Parameters
+    ----------
+    schedule : Schedule
+        From ``randomizer.time.schedule_visits``: primary visits carry
+        ``visit_date`` and ``day_index``; reserves have no date and are kept as they are.
+    frame : Frame
+        ``frame.access`` (may be empty) and ``frame.router`` (may be None: straight lines).
+    speed_kmh : float
+        Travel speed over water.
+    minutes_on_site : float
+        Time at each site (the planned time is the arrival, when sampling starts).
+    holding_h : float
+        Hours allowed from collection to lab delivery.
+    lab_minutes : float
+        Minutes from the access point to the lab.
+    seed : int or SeedSequence
+        The design's root seed; the stream ``"itinerary"`` draws, for each field day
+        in order, the direction of travel and the leaving time.
+    max_day_minutes : float, optional
+        Longest crew day (first departure to last return); None for no limit.
+
+    Returns
+    -------
+    Schedule
+        A copy with primaries' ``planned_time`` and ``route_order`` (1..k per day)
+        set, one :class:`~geosample.model.Route` per trip, ``travel_minutes_per_site``
+        (per stratum: the mean marginal travel minutes of its sites), ``time_of_day``
+        recomputed and ``warnings`` extended.
+
+    Raises
+    ------
+    SettingError
+        A speed, time or holding value out of range.
+    InfeasibleError
+        A field day's visits do not fit its window (or ``max_day_minutes``), or no
+        access point reaches the day's sites; the message gives the figures.
+
+    Examples
+    --------
+    >>> import datetime as dt, pyproj
+    >>> from zoneinfo import ZoneInfo
+    >>> from geosample.model import FieldDay, Frame, Schedule, Visit
+    >>> tz = ZoneInfo("America/Chicago")
+    >>> day = FieldDay(dt.date(2027, 6, 1), dt.datetime(2027, 6, 1, 8, tzinfo=tz),
+    ...                dt.datetime(2027, 6, 1, 16, tzinfo=tz))
+    >>> vs = tuple(Visit(f"A-00{i}", "A", "primary", 0, 500000.0 + 1000 * i, 4500000.0, 0, 0,
+    ...                  visit_date=day.date, day_index=0) for i in (1, 2))
+    >>> frame = Frame(pyproj.CRS("EPSG:32615"), "", None, None, (), 0.0)
+    >>> out = build_itinerary(Schedule(vs, (day,)), frame, seed=1)
+    >>> [round(r.length_m) for r in out.routes]
+    [2000]
+    """
+    _validate(speed_kmh, minutes_on_site, holding_h, lab_minutes, max_day_minutes)
+    m_per_min = speed_kmh * 1000.0 / 60.0
+    limit_min = holding_h * 60.0
+    rng = stream(seed, "itinerary")
+
+    by_day: dict[int, list[Visit]] = {}
+    for v in schedule.visits:
+        if v.role == "primary" and v.day_index is not None:
+            by_day.setdefault(int(v.day_index), []).append(v)
+
+    from pyproj import Transformer
+
+    to_lonlat = Transformer.from_crs(frame.crs, "EPSG:4326", always_xy=True)
+    warnings: list[str] = list(schedule.warnings)
+    if frame.router is None:
+        warnings.append(STRAIGHT_LINE_WARNING)
+    if not frame.access and by_day:
+        warnings.append(
+            "The frame has no access points: each day's route starts and ends at its first site, "
+            f"and the lab is assumed to be {lab_minutes:g} min from that site."
+        )
+
+    updates: dict[str, tuple[dt.datetime, int]] = {}
+    routes: list[Route] = []
+    marginal: dict[str, list[float]] = {}
+    stratum_of = {v.site_id: v.stratum for v in schedule.visits}
+
+    for day_index in sorted(by_day):
+        reverse = bool(rng.random() < 0.5)
+        u_start = float(rng.random())
+        if not 0 <= day_index < len(schedule.days):
+            raise ValueError(f"visit day_index {day_index} is outside Schedule.days (0..{len(schedule.days) - 1})")
+        day = schedule.days[day_index]
+        plan = _plan_day(
+            day_index, day, by_day[day_index], frame, m_per_min=m_per_min, on_site=minutes_on_site,
+            lab_minutes=lab_minutes, limit_min=limit_min, reverse=reverse, u_start=u_start,
+            max_day_minutes=max_day_minutes,
+        )
+        order = 0
+        for t_i, trip in enumerate(plan.trips, start=1):
+            ids = tuple(plan.site_ids[n] for n in trip.nodes)
+            for sid, arr in zip(ids, trip.arrive):
+                order += 1
+                updates[sid] = (plan.start + dt.timedelta(minutes=arr), order)
+            for sid, c in zip(ids if not trip.samples_depot else ids[1:],
+                              marginal_minutes(plan.dist, trip.nodes, m_per_min)):
+                marginal.setdefault(stratum_of[sid], []).append(c)
+            if trip.samples_depot:
+                # The first site is the depot: its marginal cost is what the tour saves without it.
+                marginal.setdefault(stratum_of[ids[0]], []).append(_depot_site_saving(plan, trip, m_per_min))
+            routes.append(_route(plan, trip, t_i, day, frame, to_lonlat, ids, limit_min, lab_minutes,
+                                 speed_kmh, warnings))
+
+    visits = tuple(
+        dataclasses.replace(v, planned_time=updates[v.site_id][0], route_order=updates[v.site_id][1])
+        if v.site_id in updates else v
+        for v in schedule.visits
+    )
+    travel = {name: float(np.mean(c)) for name, c in sorted(marginal.items())}
+    return dataclasses.replace(
+        schedule,
+        visits=visits,
+        routes=tuple(routes),
+        travel_minutes_per_site=travel,
+        time_of_day=_time_of_day(visits) if updates else dict(schedule.time_of_day),
+        warnings=tuple(dict.fromkeys(warnings)),
+    )
+
+
+def _depot_site_saving(plan: _DayPlan, trip: _Trip, m_per_min: float) -> float:
+    """Without access points: minutes saved if the start site were dropped (the tour then starts at the next)."""
+    seq = list(trip.nodes)
+    if len(seq) < 2:
+        return 0.0
+    d = plan.dist
+    return float(d[seq[-1], seq[0]] + d[seq[0], seq[1]] - d[seq[-1], seq[1]]) / m_per_min
+
+
+def _route(
+    plan: _DayPlan, trip: _Trip, t_i: int, day: FieldDay, frame: Frame, to_lonlat: Any,
+    ids: tuple[str, ...], limit_min: float, lab_minutes: float, speed_kmh: float, warnings: list[str],
+) -> Route:
+    nodes = ((0,) if not trip.samples_depot else ()) + trip.nodes + (0,)
+    xy_path = _path(frame.router, plan.xy, nodes)
+    lon, lat = to_lonlat.transform([p[0] for p in xy_path], [p[1] for p in xy_path])
+    ok = trip.holding_min <= limit_min + 1e-9
+    n_trips = len(plan.trips)
+    where = f"access point {plan.access.name}" if plan.access else f"first site {ids[0]}"
+    notes = []
+    if plan.access is not None:
+        notes.append(f"Starts and ends at {where}: the shortest route of {plan.candidates} access point(s) tried.")
+    else:
+        notes.append(f"Starts and ends at {where} (no access points in the frame); lab assumed {lab_minutes:g} min from it.")
+    if n_trips > 1:
+        notes.append(
+            f"Trip {t_i} of {n_trips} this day: the day was split to meet the holding time; "
+            f"at the end of each trip the samples go to the lab by courier from {where} and the crew sets out again."
+        )
+    notes.append(
+        f"Holding time: {trip.holding_min:.0f} min from the first sample to the lab "
+        f"(limit {limit_min:.0f} min, lab {lab_minutes:g} min from {where})."
+    )
+    if frame.router is None:
+        notes.append("Straight lines: over-water distances were not available.")
+    if not ok:
+        single = len(trip.nodes) - (1 if trip.samples_depot else 0) <= 1
+        warnings.append(
+            f"{day.date} trip {t_i} ({', '.join(ids)}): the first sample would reach the lab "
+            f"{trip.holding_min:.0f} min after collection, over the {limit_min:.0f} min holding time "
+            f"(time.holding_h); {'even this single site cannot meet it' if single else 'it cannot be split further'} "
+            f"at time.speed_kmh = {speed_kmh:g} with time.lab_minutes = {lab_minutes:g}. "
+            "Raise the speed, shorten lab_minutes (a closer lab or a courier), or remove these sites from the frame (area.reach_m)."
+        )
+    return Route(
+        day_index=plan.day_index,
+        date=day.date,
+        access=plan.access.name if plan.access else "",
+        site_ids=ids,
+        coords_xy=xy_path,
+        coords_lonlat=tuple((float(a), float(b)) for a, b in zip(lon, lat)),
+        length_m=trip.length_m,
+        start=plan.start + dt.timedelta(minutes=trip.leave),
+        end=plan.start + dt.timedelta(minutes=trip.back),
+        lab_deadline_ok=ok,
+        notes=tuple(notes),
+    )
