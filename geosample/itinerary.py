@@ -437,12 +437,21 @@ def _simple_time_of_day(visits: Sequence[Visit]) -> dict[str, dict[str, float]]:
     return out
 
 
-def _time_of_day(visits: Sequence[Visit]) -> dict[str, dict[str, float]]:
+def _time_of_day(schedule: Schedule) -> dict[str, dict[str, float]]:
+    """The time module's per-stratum summary when it has one, else :func:`_simple_time_of_day`.
+
+    ``randomizer.time.time_of_day_summary`` is called with the Schedule when its
+    first parameter is named ``schedule``, with the visits otherwise.
+    """
     try:
         from .randomizer.time import time_of_day_summary  # type: ignore[attr-defined]
     except ImportError:
-        return _simple_time_of_day(visits)
-    return time_of_day_summary(visits)
+        return _simple_time_of_day(schedule.visits)
+    import inspect
+
+    params = list(inspect.signature(time_of_day_summary).parameters)
+    arg = schedule if params and params[0] == "schedule" else schedule.visits
+    return dict(time_of_day_summary(arg))
 
 
 # --------------------------------------------------------------------------- checks
@@ -594,14 +603,16 @@ def build_itinerary(
         for v in schedule.visits
     )
     travel = {name: float(np.mean(c)) for name, c in sorted(marginal.items())}
-    return dataclasses.replace(
+    out = dataclasses.replace(
         schedule,
         visits=visits,
         routes=tuple(routes),
         travel_minutes_per_site=travel,
-        time_of_day=_time_of_day(visits) if updates else dict(schedule.time_of_day),
         warnings=tuple(dict.fromkeys(warnings)),
     )
+    if updates:
+        out = dataclasses.replace(out, time_of_day=_time_of_day(out))
+    return out
 
 
 def _depot_site_saving(plan: _DayPlan, trip: _Trip, m_per_min: float) -> float:

@@ -407,3 +407,30 @@ def test_time_of_day_and_travel_cost_per_stratum():
     assert set(out.time_of_day) == {"North", "South"}
     assert set(out.travel_minutes_per_site) == {"North", "South"}
     assert all(c >= 0 for c in out.travel_minutes_per_site.values())
+
+
+# --------------------------------------------------------------------------- properties
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@settings(max_examples=30, deadline=None)
+@given(
+    k=st.integers(1, 8),
+    data_seed=st.integers(0, 10_000),
+    seed=st.integers(0, 2**32),
+    holding_h=st.sampled_from([1.0, 2.0, 6.0]),
+    with_access=st.booleans(),
+)
+def test_any_day_fits_its_window_and_orders_all_sites(k, data_seed, seed, holding_h, with_access):
+    # Properties (common practice for a schedule): all times inside the window,
+    # route order 1..k, holding flag consistent with the figures.
+    sched = make_schedule(random_days(1, k, seed=data_seed, spread=2500), start=(6, 0), end=(20, 0))
+    frame = make_frame(ACCESS if with_access else (), EuclidRouter())
+    out = build_itinerary(sched, frame, seed=seed, holding_h=holding_h, lab_minutes=30)
+    day = out.days[0]
+    visits = {v.site_id: v for v in out.visits}
+    assert all(day.window_start <= v.planned_time <= day.window_end for v in out.visits)
+    assert sorted(v.route_order for v in out.visits) == list(range(1, k + 1))
+    for r in out.routes:
+        assert r.lab_deadline_ok == (trip_holding_minutes(r, visits, 30) <= 60 * holding_h + 1e-6)
