@@ -1,0 +1,108 @@
+"""``geosample assess OUT RESULTS.csv``: the estimate, interval, decision and statement after the field work."""
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+
+from . import cli as group
+from ._common import command, echo_json
+
+ADJUST_CHOICES = ("holm", "bh", "bonferroni", "none")  # = geosample.stats.estimate.ADJUST_METHODS (checked in tests)
+
+
+@command(group, "assess", short_help="Estimate, interval, decision and statement from the crew's results.")
+@click.argument("out", metavar="OUT", type=click.Path(path_type=Path))
+@click.argument("results", metavar="RESULTS.csv", type=click.Path(path_type=Path))
+@click.option("--json", "as_json", is_flag=True, help="Print the figures as JSON.")
+@click.option("--next-plan", "next_plan", type=click.Path(path_type=Path), default=None,
+              help="Write a plan file for the next season: same settings, allocation from the observed sds, no seed.")
+@click.option("--adjust", type=click.Choice(ADJUST_CHOICES), default="holm", show_default=True,
+              help="Adjustment of the per-stratum p-values: Holm, Benjamini-Hochberg, Bonferroni or none.")
+@click.option("--overwrite", is_flag=True, help="Replace an existing --next-plan file.")
+@click.option("--lenient", is_flag=True,
+              help="Flag and leave out unreadable results and unknown or duplicated site ids instead of stopping.")
+def assess_command(out: Path, results: Path, as_json: bool, next_plan: Path | None, adjust: str, overwrite: bool,
+                   lenient: bool) -> None:
+    """Read RESULTS.csv (the design's schedule.csv with 'result', 'qualifier' and
+    'sampled_at' filled in by the crew), check it against the design in OUT, and
+    report the stratified mean with its interval from the plan's bound, the
+    decision against the criterion in words a regulator can rely on, every
+    stratum's comparison with the criterion, and the allocation for the next round.
+
+    \b
+    Results may be numbers, '<10' (below a detection limit), '>2419.6' (above
+    the method's upper limit) or 'ND'; leave 'result' empty for a site not
+    sampled and write why in 'qualifier' ("no access").
+
+    Writes OUT/assessment.html (replaced on every run). Nothing else in OUT
+    changes. Exit code 2 with the row numbers when the results file has problems.
+    """
+    from ..errors import OutputExistsError
+    from ..export.assessment import HTML_NAME, write_assessment, write_next_plan
+    from ..results import read_design_folder, read_results
+    from ..stats.estimate import assess
+
+    if next_plan is not None and next_plan.exists() and not overwrite:
+        raise OutputExistsError(f"--next-plan file {str(next_plan)!r} exists already. Choose another file name, "
+                                "or add --overwrite to replace it.")
+    manifest, rows = read_design_folder(out)
+    res = read_results(results, manifest, rows, strict=not lenient)
+    a = assess(res, manifest, adjust=adjust)
+    written = {}
+    if next_plan is not None:
+        written["next_plan"] = str(write_next_plan(a, manifest, next_plan, design_folder=out,
+                                                   results_name=results.name, overwrite=overwrite))
+    written["html"] = str(write_assessment(a, out, results_path=results))
+    if as_json:
+        data = a.as_dict()
+        data["results"] = {"path": str(results), "encoding": res.encoding, "delimiter": res.delimiter,
+                           "rows": len(res.records)}
+        data["written"] = written
+        echo_json(data)
+        return
+    click.echo(summary_text(a))
+    click.echo("")
+    click.echo(f"Wrote {Path(out) / HTML_NAME}" + (f" and {written['next_plan']}" if "next_plan" in written else ""))
+
+
+def summary_text(a) -> str:
+    """The plain-text summary printed on stdout."""
+    d = a.as_dict()
+    geo = a.statistic == "geomean"
+    lines = [a.statement, "", a.decision_text]
+    if a.range_void:
+        lines.append(f"NOTE: the planned {a.planned_bound} bound does not hold (results outside the declared range); "
+                     f"the interval is from the {a.bound} bound.")
+    lines.append(f"Sequence: {a.sequential.note}.")
+    lines += ["", f"Strata (all {len(a.strata)} compared with the criterion; p adjusted by {a.adjust}):"]
+    head = ("stratum", "n", "planned", "mean", "sd (log10)" if geo else "sd", "interval", "p", "p adj", "comparison")
+    body = []
+    for s in d["strata"]:
+        body.append((s["name"], str(s["n"]), _f(s["n_planned"]), _f(s["mean"]), _f(s["sd"]),
+                     f"{_f(s['low'])} to {_f(s['high'])}", _f(s["p_value"], 3), _f(s["p_adjusted"], 3),
+                     s["decision"] or "-"))
+    widths = [max(len(r[i]) for r in [head, *body]) for i in range(len(head))]
+    for r in [head, *body]:
+        lines.append("  " + "  ".join(c.ljust(w) if i in (0, 8) else c.rjust(w) for i, (c, w) in
+                                      enumerate(zip(r, widths))))
+    if a.next_allocation is not None:
+        r = a.next_allocation
+        lines += ["", f"Next round ({r.method}, {r.bound} bound): " + ", ".join(
+            f"{s} {n}" for s, n in zip(r.strata, r.n)) + f" (total {r.total})"]
+    if a.flags:
+        lines += ["", f"Flags ({len(a.flags)}):"]
+        for f in a.flags:
+            rows = f" [rows {', '.join(map(str, f.rows[:15]))}{' ...' if len(f.rows) > 15 else ''}]" if f.rows else ""
+            lines.append(f"  - {f.kind}{rows}: {f.message}")
+    if a.notes:
+        lines += ["", "Notes:"] + [f"  - {n}" for n in a.notes]
+    return "\n".join(lines)
+
+
+def _f(v, digits: int = 4) -> str:
+    if v is None:
+        return "-"
+    if isinstance(v, float):
+        return f"{v:.{digits}g}"
+    return str(v)
