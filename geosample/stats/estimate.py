@@ -675,7 +675,13 @@ def stratum_pvalue(bound: str, values, criterion: float, *, L: float | None, low
         return float(min(1.0, (2 if sides == "two" else 1) * stats.t.sf(tstat, n - 1)))
     if bound == "betting":
         x = np.clip((v - lower) / L, 0, 1)
-        return betting_pvalue(x, (criterion - lower) / L, alpha=1 - confidence, sides=sides, direction=direction)
+        m = (criterion - lower) / L
+        if m >= 1 or m <= 0:  # the criterion lies outside the declared range: the comparison is settled by it
+            beyond_top = m >= 1
+            if sides == "one" and (direction == "above") == beyond_top:
+                return 1.0
+            return 0.0
+        return betting_pvalue(x, m, alpha=1 - confidence, sides=sides, direction=direction)
     if diff <= 0:
         return 1.0
     if bound in ("chebyshev", "cantelli"):
@@ -1009,6 +1015,15 @@ def _sequential(bound: str, iv: Interval, strata: list[_Stratum], seqs: list[Bet
                       "the strata like these)")
 
 
+def _clip(iv: Interval, lo: float, hi: float) -> Interval:
+    """The interval cut to ``[lo, hi]`` on its finite sides (the same object when nothing changes)."""
+    low = max(iv.low, lo) if np.isfinite(iv.low) else iv.low
+    high = min(iv.high, hi) if np.isfinite(iv.high) else iv.high
+    if low == iv.low and high == iv.high:
+        return iv
+    return replace(iv, low=low, high=high, half_width=None)
+
+
 def _frame_label(manifest: dict) -> str:
     settings = manifest.get("settings", {})
     title = settings.get("survey", {}).get("title") or "the survey"
@@ -1079,6 +1094,15 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
                 + " needs at least 2 per stratum to estimate the spread. Sample a reserve there (in reserve_rank "
                 "order), or declare a range that the results respect.")
     iv, _, seqs = _interval(bound, strata, confidence, sides, direction)
+    clip = bound in RANGE_BOUNDS and not set(getattr(results, "outside_support", ()))
+    if clip:
+        w = np.array([s.weight for s in strata])
+        support = (float(w @ [s.lower for s in strata]), float(w @ [s.lower + s.L for s in strata]))
+        clipped = _clip(iv, *support)
+        if clipped is not iv:
+            notes.append(f"the interval is cut to the declared range of the mean, {support[0]:g} to {support[1]:g} "
+                         "(the mean cannot lie outside it)")
+        iv = clipped
     notes += list(iv.notes)
     decision = decide(iv.low, iv.high, a_crit, sides, direction)
     # per-stratum figures and comparisons
@@ -1088,6 +1112,8 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
         sd = float(s.y.std(ddof=1)) if s.y.size > 1 else None
         one = _interval(bound if not (bound == "t" and s.y.size < 2) else "chebyshev", [
             _Stratum(s.name, 1.0, s.y, s.lower, s.L, s.n_planned, 0, 0)], confidence, sides, direction)[0]
+        if clip:
+            one = _clip(one, s.lower, s.lower + s.L)
         p = None
         if a_crit is not None:
             p = stratum_pvalue(bound, s.y, a_crit, L=s.L, lower=s.lower, confidence=confidence, sides=sides,
