@@ -305,6 +305,7 @@ def _sun_times(observer: Any, date: dt.date, tz: dt.tzinfo) -> dict[str, dt.date
 def _polar_error(failures: list[tuple[dt.date, str]], lat: float, lon: float, window: Window, tz_name: str
                  ) -> InfeasibleError:
     first, reason = failures[0]
+    reason = reason[:1].lower() + reason[1:]
     last = failures[-1][0]
     kind = ""
     low = reason.lower()
