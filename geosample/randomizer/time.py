@@ -52,6 +52,7 @@ __all__ = [
     "draw_times",
     "schedule_visits",
     "time_of_day_summary",
+    "temporal_label",
 ]
 
 WEEKDAYS = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
