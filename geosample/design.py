@@ -246,7 +246,8 @@ def make_design(
     t = settings["time"]
     lon, lat = _frame_lonlat(frame)
     days = field_days(t["start"], t["end"], weekdays=t["days"], skip=t["skip"], window=t["window"],
-                      timezone=settings["survey"]["timezone"], lat=lat, lon=lon, temporal=t["temporal"])
+                      timezone=settings["survey"]["timezone"], lat=lat, lon=lon, temporal=t["temporal"],
+                      min_minutes=t["minutes_on_site"])
     day_tuple = getattr(days, "days", days)
     day_warnings = tuple(getattr(days, "warnings", ()))
     schedule = schedule_visits(draw, day_tuple, per_day=t["per_day"], seed=seed,
