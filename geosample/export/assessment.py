@@ -276,6 +276,10 @@ def _fmt(v: Any, digits: int = 4) -> str:
     return str(v)
 
 
+def _pct(confidence: float) -> str:
+    return f"{100 * confidence:.4f}".rstrip("0").rstrip(".") + "%"
+
+
 def render_assessment(assessment: Any, *, results_name: str, results_sha256: str = "",
                       extra: dict | None = None) -> str:
     """The HTML page of an assessment (jinja2, autoescaped)."""
@@ -286,6 +290,7 @@ def render_assessment(assessment: Any, *, results_name: str, results_sha256: str
         autoescape=True, undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
     )
     env.filters["fmt"] = _fmt
+    env.filters["pct"] = _pct
     tpl = env.get_template("assessment.html.j2")
     from ..version import __version__
 
