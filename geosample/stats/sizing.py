@@ -551,7 +551,7 @@ def half_width(n: int, confidence: float = 0.95, *, range: float | None = None, 
     Examples
     --------
     >>> round(half_width(43, 0.90, range=80, bound="hoeffding"), 3)
-    14.834
+    14.931
     """
     nm = _names(names)
     bound, sides, L, s, sig = _single(bound, sides, range, sd, nm)
