@@ -103,6 +103,25 @@ def test_betting_sequence_never_widens_and_contains_the_final_interval():
     assert seq.low[-1] <= seq.low_final <= x.mean() <= seq.high_final <= seq.high[-1]
 
 
+@pytest.mark.parametrize("sides, direction", [("two", "below"), ("one", "below"), ("one", "above")])
+def test_betting_bounds_agree_with_a_brute_force_grid(sides, direction):
+    # the set {m : hedged capital stayed below 1/a at every time}, evaluated directly on 20,001 means
+    from geosample.stats.estimate import betting_bounds
+
+    rng = np.random.default_rng(16)
+    x = rng.beta(3, 4, size=150)
+    a = 0.05
+    theta = {"two": 0.5, "below": 0.0, "above": 1.0}[sides if sides == "two" else direction]
+    m = np.linspace(0, 1, 20001)
+    lc = betting_log_capital(x, m, prpl_bets(x, a, sides), theta=theta, c=0.5)
+    inside = m[lc.max(axis=0) < math.log(1 / a)]
+    lo, hi = betting_bounds(x, alpha=a, sides=sides, direction=direction)
+    assert lo <= inside.min() and hi >= inside.max()  # never narrower than the exact set
+    assert inside.min() - lo < 1e-4 and hi - inside.max() < 1e-4
+    seq = betting_sequence(x, alpha=a, sides=sides, direction=direction)
+    assert seq.low[-1] <= inside.min() and seq.high[-1] >= inside.max()
+
+
 def test_betting_interval_in_original_units_and_one_sided():
     rng = np.random.default_rng(6)
     v = 50 + 30 * rng.beta(2, 3, size=200)
@@ -419,11 +438,16 @@ def test_established_after_k_samples_with_betting():
     a = assess(fake_results({"Whole lake": v}), m)
     assert a.decision == "below"
     k = a.sequential.established_after
-    assert 1 <= k <= 120
-    # independently: the first k at which the upper end of the running sequence drops below the criterion
-    seq = betting_sequence(np.array(v) / 200, alpha=0.05)
-    first = int(np.argmax(200 * seq.high[1:] < 126)) + 1
-    assert k == first
+    # independently, from the paper's definitions written out here: predictable plug-in bets
+    # lam_t = sqrt(2 ln(2/a) / (sigma2_{t-1} t ln(1+t))), truncated at c/(1-m), c = 1/2; the K- bettor's
+    # capital (weight 1/2) at m = criterion/L reaching 1/a rejects every mean >= the criterion
+    x, c01, alpha = np.array(v) / 200, 126 / 200, 0.05
+    t = np.arange(1, x.size + 1)
+    mu = (0.5 + np.cumsum(x)) / (t + 1)
+    sig2 = np.concatenate(([0.25], ((0.25 + np.cumsum((x - mu) ** 2)) / (t + 1))[:-1]))
+    lam = np.minimum(np.sqrt(2 * np.log(2 / alpha) / (sig2 * t * np.log(1 + t))), 0.5 / (1 - c01))
+    capital = 0.5 * np.cumprod(1 - lam * (x - c01))
+    assert k == int(np.argmax(capital >= 1 / alpha)) + 1
     short = assess(fake_results({"Whole lake": v[: max(1, k - 1)]}), m)
     assert short.decision == "not established" and short.sequential.more_needed >= 1
     assert "estimate" in short.sequential.note

@@ -59,6 +59,7 @@ __all__ = [
     "capital_process",
     "prpl_bets",
     "betting_log_capital",
+    "betting_bounds",
     "betting_sequence",
     "betting_interval",
     "betting_pvalue",
@@ -98,7 +99,7 @@ BOUND_ASSUMPTIONS = {
                "looked at after every field day and sampling stops as soon as the claim is established",
 }
 
-_GRID = 2001  # grid of candidate means on [0, 1] for the betting sequence path
+_GRID = 1001  # grid of candidate means on [0, 1] for the betting sequence path (final ends: bisection)
 _CHUNK = 2_000_000  # most cells of an (n, grid) array held at once
 
 
@@ -468,6 +469,16 @@ def _theta(sides: str, direction: str) -> float:
     return 0.0 if direction == "below" else 1.0
 
 
+def _log_k(x: np.ndarray, m: np.ndarray, lam: np.ndarray, c: float, sign: int) -> np.ndarray:
+    """log K+ (sign = +1) or log K- (sign = -1) after each observation: (n, G) for x (n,), m (G,)."""
+    x = x[:, None]
+    m = m[None, :]
+    with np.errstate(divide="ignore"):
+        cap = c / m if sign > 0 else c / (1.0 - m)
+    bet = np.minimum(lam[:, None], cap)
+    return np.cumsum(np.log1p(sign * bet * (x - m)), axis=0)
+
+
 def betting_log_capital(x, m, lam, *, theta: float = 0.5, c: float = 0.5) -> np.ndarray:
     """log of the hedged capital ``max(theta K+, (1 - theta) K-)`` after each observation, for each m.
 
@@ -475,41 +486,57 @@ def betting_log_capital(x, m, lam, *, theta: float = 0.5, c: float = 0.5) -> np.
     before truncation. Bets are truncated at ``c/m`` (K+) and ``c/(1 - m)`` (K-), so
     the capital never reaches 0. Returns an (n, G) array.
     """
-    x = np.asarray(x, float)[:, None]
-    m = np.atleast_1d(np.asarray(m, float))[None, :]
-    lam = np.asarray(lam, float)[:, None]
-    with np.errstate(divide="ignore"):
-        lp = np.minimum(lam, c / m)
-        lm = np.minimum(lam, c / (1.0 - m))
-    d = x - m
-    out = np.full((x.shape[0], m.shape[1]), -np.inf)
+    x = np.asarray(x, float)
+    m = np.atleast_1d(np.asarray(m, float))
+    lam = np.asarray(lam, float)
+    out = np.full((x.size, m.size), -np.inf)
     if theta > 0:
-        out = np.log(theta) + np.cumsum(np.log1p(lp * d), axis=0)
+        out = math.log(theta) + _log_k(x, m, lam, c, +1)
     if theta < 1:
-        minus = np.log(1.0 - theta) + np.cumsum(np.log1p(-lm * d), axis=0)
-        out = np.maximum(out, minus)
+        out = np.maximum(out, math.log(1.0 - theta) + _log_k(x, m, lam, c, -1))
     return out
 
 
-def _ever_excluded(x, m, lam, theta, c, thresh) -> np.ndarray:
-    """For each m (1-D), whether the running capital reached ``thresh`` (log) at any time."""
-    out = np.empty(len(m), dtype=bool)
-    step = max(1, _CHUNK // max(1, len(x)))
-    for i in range(0, len(m), step):
-        lc = betting_log_capital(x, m[i : i + step], lam, theta=theta, c=c)
-        out[i : i + step] = (lc >= thresh).any(axis=0)
-    return out
+def _side_excluded(x, m: float, lam, c: float, sign: int, log_weight: float, thresh: float) -> bool:
+    """Whether one bettor's weighted capital reached ``1/alpha`` at some time, at candidate mean ``m``."""
+    return bool(log_weight + _log_k(x, np.array([m]), lam, c, sign)[:, 0].max() >= thresh)
 
 
-def _bisect_end(x, lam, theta, c, thresh, inside: float, outside: float, iters: int = 50) -> float:
-    """Bisection for the end point between a point known inside the set and one outside."""
+def _side_end(x, lam, c: float, sign: int, log_weight: float, thresh: float, iters: int = 52) -> float:
+    """End point of the confidence set on one side, by bisection (rounded outwards).
+
+    K+ is nonincreasing in m and K- nondecreasing (every factor is), so the means
+    K+ rejects form [0, l) and those K- rejects (u, 1]: the set is an interval.
+    """
+    excl, incl = (0.0, 1.0) if sign > 0 else (1.0, 0.0)
+    if not _side_excluded(x, excl, lam, c, sign, log_weight, thresh):
+        return excl
     for _ in range(iters):
-        mid = 0.5 * (inside + outside)
-        if _ever_excluded(x, np.array([mid]), lam, theta, c, thresh)[0]:
-            outside = mid
+        mid = 0.5 * (excl + incl)
+        if _side_excluded(x, mid, lam, c, sign, log_weight, thresh):
+            excl = mid
         else:
-            inside = mid
-    return outside  # rounded outwards: the returned point is never inside
+            incl = mid
+    return excl  # a rejected point: the reported interval can only be wider than the exact one
+
+
+def betting_bounds(x, *, alpha: float, sides: str = "two", direction: str = "below", c: float = 0.5
+                   ) -> tuple[float, float]:
+    """End points (on [0, 1]) of the betting confidence sequence after all of ``x`` (running intersection).
+
+    Exact up to bisection (52 halvings), no grid; see :func:`betting_sequence`.
+    """
+    x = np.asarray(x, float)
+    if x.size == 0:
+        return 0.0, 1.0
+    theta = _theta(sides, direction)
+    lam = prpl_bets(x, alpha, sides)
+    thresh = math.log(1.0 / alpha)
+    low = _side_end(x, lam, c, +1, math.log(theta), thresh) if theta > 0 else 0.0
+    high = _side_end(x, lam, c, -1, math.log(1 - theta), thresh) if theta < 1 else 1.0
+    if low > high:  # every mean rejected (probability at most alpha): report the point it closed on
+        low = high = 0.5 * (low + high)
+    return low, high
 
 
 def betting_sequence(x, *, alpha: float, sides: str = "two", direction: str = "below", c: float = 0.5,
@@ -519,53 +546,47 @@ def betting_sequence(x, *, alpha: float, sides: str = "two", direction: str = "b
     The set after ``t`` observations is ``{m : max(theta K+_s(m), (1 - theta) K-_s(m)) < 1/alpha
     for every s <= t}`` with ``theta = 1/2`` (two-sided). One-sided upper bounds
     (``direction = "below"``) use only K- (theta = 0), lower bounds only K+. Each
-    bettor's capital is monotone in m, so the set is an interval; the path is
-    computed on a grid of ``grid`` points (rounded outwards) and the final end
-    points by bisection. Vectorised over the grid; n = 1,000 takes well under a second.
+    bettor's capital is monotone in m, so the set is an interval. The path (after
+    each observation) is computed on a grid of ``grid`` candidate means, vectorised,
+    with end points rounded outwards to the next grid point; the final end points
+    by bisection (:func:`betting_bounds`). n = 1,000 takes well under a second.
     """
     x = np.asarray(x, float)
     if x.size and (x.min() < 0 or x.max() > 1):
         raise ValueError("betting_sequence needs data rescaled to [0, 1]")
     n = x.size
     theta = _theta(sides, direction)
+    low, high = np.zeros(n + 1), np.ones(n + 1)
+    low_f, high_f = betting_bounds(x, alpha=alpha, sides=sides, direction=direction, c=c)
+    if n == 0:
+        return BettingSequence(low, high, low_f, high_f, alpha, sides, direction)
     lam = prpl_bets(x, alpha, sides)
     thresh = math.log(1.0 / alpha)
-    low = np.zeros(n + 1)
-    high = np.ones(n + 1)
-    if n == 0:
-        return BettingSequence(low, high, 0.0, 1.0, alpha, sides, direction)
     m = np.linspace(0.0, 1.0, grid)
-    first = np.full(n, -1)
-    last = np.full(n, -1)
     step = max(1, _CHUNK // n)
+    # first time each grid mean is rejected by each bettor (n when never)
+    t_plus = np.full(grid, n)
+    t_minus = np.full(grid, n)
     for i in range(0, grid, step):
         mm = m[i : i + step]
-        inc = np.maximum.accumulate(betting_log_capital(x, mm, lam, theta=theta, c=c), axis=0) < thresh
-        has = inc.any(axis=1)
-        f = i + np.argmax(inc, axis=1)
-        l_ = i + mm.size - 1 - np.argmax(inc[:, ::-1], axis=1)
-        first = np.where((first < 0) & has, f, first)
-        last = np.where(has, l_, last)
-    empty = first < 0
-    lo_idx = np.clip(first - 1, 0, grid - 1)
-    hi_idx = np.clip(last + 1, 0, grid - 1)
-    low[1:] = np.where(empty, np.nan, np.where(first == 0, 0.0, m[lo_idx]))
-    high[1:] = np.where(empty, np.nan, np.where(last == grid - 1, 1.0, m[hi_idx]))
-    if empty[-1]:
-        # every candidate mean was rejected (happens with probability at most alpha):
-        # report the point the sequence closed on
-        k = int(np.argmax(empty))
-        low_f = high_f = float(0.5 * (low[k] + high[k])) if k > 0 else 0.5
-        low[k + 1 :] = high[k + 1 :] = low_f
-        return BettingSequence(low, high, low_f, high_f, alpha, sides, direction)
-    f, l_ = int(first[-1]), int(last[-1])
-    low_f = 0.0 if f == 0 else _bisect_end(x, lam, theta, c, thresh, m[f], m[f - 1])
-    high_f = 1.0 if l_ == grid - 1 else _bisect_end(x, lam, theta, c, thresh, m[l_], m[l_ + 1])
-    if sides == "one":
-        if direction == "below":
-            low[:], low_f = 0.0, 0.0
-        else:
-            high[:], high_f = 1.0, 1.0
+        for sign, w, out in ((+1, theta, t_plus), (-1, 1 - theta, t_minus)):
+            if w <= 0:
+                continue
+            hit = (math.log(w) + _log_k(x, mm, lam, c, sign)) >= thresh
+            out[i : i + step] = np.where(hit.any(axis=0), np.argmax(hit, axis=0), n)
+    t = np.arange(n)[:, None]
+    rej_plus = t_plus[None, :] <= t  # (n, grid): rejected by K+ at or before time t
+    rej_minus = t_minus[None, :] <= t
+    # K+ rejects a prefix of the grid, K- a suffix
+    k_lo = rej_plus.sum(axis=1)  # index of the first grid mean K+ has not rejected
+    k_hi = grid - 1 - rej_minus.sum(axis=1)  # index of the last grid mean K- has not rejected
+    low[1:] = np.where(k_lo == 0, 0.0, m[np.clip(k_lo - 1, 0, grid - 1)])
+    high[1:] = np.where(k_hi == grid - 1, 1.0, m[np.clip(k_hi + 1, 0, grid - 1)])
+    crossed = low > high
+    if crossed.any():
+        mid = 0.5 * (low + high)
+        low, high = np.where(crossed, mid, low), np.where(crossed, mid, high)
+    low[-1], high[-1] = min(low[-1], low_f), max(high[-1], high_f)
     return BettingSequence(low, high, low_f, high_f, alpha, sides, direction)
 
 
@@ -591,9 +612,9 @@ def betting_interval(values, *, lower: float, range: float, confidence: float = 
         raise ValueError("betting_interval needs at least one value")
     if x.min() < 0 or x.max() > 1:
         raise ValueError(f"values outside the declared range [{lower}, {lower + range}]")
-    seq = betting_sequence(x, alpha=a, sides=sides, direction=direction, c=c)
-    lo = lower + range * seq.low_final
-    hi = lower + range * seq.high_final
+    lo01, hi01 = betting_bounds(x, alpha=a, sides=sides, direction=direction, c=c)
+    lo = lower + range * lo01
+    hi = lower + range * hi01
     if sides == "one":
         lo, hi = (-math.inf, hi) if direction == "below" else (lo, math.inf)
     return Interval(float(v.mean()), lo, hi, confidence, "betting", sides)
@@ -909,7 +930,8 @@ def _stratum_inputs(results: Any, manifest: dict) -> list[_Stratum]:
     return out
 
 
-def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str, direction: str) -> tuple[
+def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str, direction: str,
+              path: bool = False) -> tuple[
         Interval, BettingSequence | None, list[BettingSequence]]:
     w = np.array([s.weight for s in strata])
     n_h = np.array([s.y.size for s in strata])
@@ -946,10 +968,14 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
         lo = hi = 0.0
         for s in strata:
             x = (s.y - s.lower) / s.L
-            seq = betting_sequence(x, alpha=a / H, sides=sides, direction=direction)
-            seqs.append(seq)
-            lo += s.weight * (s.lower + s.L * seq.low_final)
-            hi += s.weight * (s.lower + s.L * seq.high_final)
+            if path:
+                seq = betting_sequence(x, alpha=a / H, sides=sides, direction=direction)
+                seqs.append(seq)
+                l01, h01 = seq.low_final, seq.high_final
+            else:
+                l01, h01 = betting_bounds(x, alpha=a / H, sides=sides, direction=direction)
+            lo += s.weight * (s.lower + s.L * l01)
+            hi += s.weight * (s.lower + s.L * h01)
         if H > 1:
             notes.append(f"betting confidence sequence in each of the {H} strata at error {a / H:.4g} (union bound "
                          "over strata), end points combined with the area weights: valid, but wider than a "
@@ -965,6 +991,42 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
     return Interval(est, lo, hi, confidence, bound, sides, float(d), df, tuple(notes)), None, seqs
 
 
+def _established_after(strata: list[_Stratum], seqs: list[BettingSequence], order: list[tuple[int, int]],
+                       criterion: float, direction: str, sides: str, confidence: float) -> int | None:
+    """The first k (samples in the order taken) at which the running betting set excludes the criterion."""
+    want_below = not (sides == "one" and direction == "above")
+    want_above = not (sides == "one" and direction == "below")
+    if len(strata) == 1:
+        s = strata[0]
+        m = (criterion - s.lower) / s.L
+        if 0 < m < 1:  # exactly, at the criterion: rejected by K- means every mean >= criterion is rejected
+            x = (s.y - s.lower) / s.L
+            a = 1 - confidence
+            lam = prpl_bets(x, a, sides)
+            theta = _theta(sides, direction)
+            hit = np.zeros(x.size, dtype=bool)
+            if want_below and theta < 1:
+                hit |= math.log(1 - theta) + _log_k(x, np.array([m]), lam, 0.5, -1)[:, 0] >= math.log(1 / a)
+            if want_above and theta > 0:
+                hit |= math.log(theta) + _log_k(x, np.array([m]), lam, 0.5, +1)[:, 0] >= math.log(1 / a)
+            return int(np.argmax(hit)) + 1 if hit.any() else None
+    # combined running interval after each sample (union bound over strata), on the sequences' grids
+    H = len(strata)
+    idx = np.array([h for h, _ in order], dtype=int)
+    counts = np.cumsum(np.eye(H, dtype=int)[idx], axis=0)  # (n, H): samples of each stratum so far
+    lo = np.zeros(len(idx))
+    hi = np.zeros(len(idx))
+    for h, (s, q) in enumerate(zip(strata, seqs)):
+        lo += s.weight * (s.lower + s.L * q.low[counts[:, h]])
+        hi += s.weight * (s.lower + s.L * q.high[counts[:, h]])
+    hit = np.zeros(len(idx), dtype=bool)
+    if want_below:
+        hit |= hi < criterion
+    if want_above:
+        hit |= lo > criterion
+    return int(np.argmax(hit)) + 1 if hit.any() else None
+
+
 def _sequential(bound: str, iv: Interval, strata: list[_Stratum], seqs: list[BettingSequence],
                 order: list[tuple[int, int]], criterion: float | None, decision: str | None,
                 direction: str, sides: str) -> Sequential:
@@ -973,21 +1035,7 @@ def _sequential(bound: str, iv: Interval, strata: list[_Stratum], seqs: list[Bet
         return Sequential(None, None, "no criterion: nothing to establish")
     established = None
     if bound == "betting" and seqs:
-        # combined running interval after each sample, in the order the samples were taken
-        counts = np.zeros(len(strata), dtype=int)
-        lo_path, hi_path = [], []
-        for h, _ in order:
-            counts[h] += 1
-            lo_path.append(sum(s.weight * (s.lower + s.L * q.low[k]) for s, q, k in zip(strata, seqs, counts)))
-            hi_path.append(sum(s.weight * (s.lower + s.L * q.high[k]) for s, q, k in zip(strata, seqs, counts)))
-        lo_a, hi_a = np.array(lo_path), np.array(hi_path)
-        hit = np.zeros(len(order), dtype=bool)
-        if not (sides == "one" and direction == "above"):
-            hit |= hi_a < criterion
-        if not (sides == "one" and direction == "below"):
-            hit |= lo_a > criterion
-        if hit.any():
-            established = int(np.argmax(hit)) + 1
+        established = _established_after(strata, seqs, order, criterion, direction, sides, iv.confidence)
     if decision in ("below", "above"):
         if established is None:
             established = n
@@ -1093,7 +1141,7 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
                 + (f" (used because the {planned} bound is void)" if range_void else "")
                 + " needs at least 2 per stratum to estimate the spread. Sample a reserve there (in reserve_rank "
                 "order), or declare a range that the results respect.")
-    iv, _, seqs = _interval(bound, strata, confidence, sides, direction)
+    iv, _, seqs = _interval(bound, strata, confidence, sides, direction, path=a_crit is not None)
     clip = bound in RANGE_BOUNDS and not set(getattr(results, "outside_support", ()))
     if clip:
         w = np.array([s.weight for s in strata])
