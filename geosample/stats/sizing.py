@@ -878,14 +878,14 @@ def largest_remainder(p: Sequence[float], total: int, *, minimum: int = 0,
     return tuple(n), notes
 
 
-def _strat_inputs(weights, range_v, sd, bound, sides, nm, labels=None):
+def _strat_inputs(weights, range_v, sd, bound, sides, nm, labels=None, require=True):
     bound, sides = _check_bound_sides(bound, sides, nm)
     w = _weights(weights, nm)
     k = len(w)
     labels = labels or [f"stratum {h + 1}" for h in range_(k)]
     L = _per(range_v, k, "range", nm, "the largest possible difference between two measurements")
     s = _per(sd, k, "sd", nm, "a standard deviation")
-    sig = _scales(bound, L, s, nm, labels)
+    sig = _scales(bound, L, s, nm, labels) if require else [_sigma(Lh, sh) for Lh, sh in zip(L, s)]
     return bound, sides, w, L, s, sig
 
 
@@ -1030,7 +1030,10 @@ def allocate(weights: Sequence[float], *, strata: Sequence[str] | None = None, n
     labels = list(strata) if strata is not None else [f"stratum {h + 1}" for h in range_(k)]
     if len(labels) != k:
         raise SettingError(nm["strata"], tuple(labels), f"{k} names, one per weight")
-    bound, sides, w, L, s, sig = _strat_inputs(w, range, sd, bound, sides, nm, labels)
+    # a fixed total split in proportion to area (or equally) needs no scale; it then guarantees nothing
+    bare = n is not None and tolerance is None and range is None and sd is None and method in ("proportional",
+                                                                                                 "equal")
+    bound, sides, w, L, s, sig = _strat_inputs(w, range, sd, bound, sides, nm, labels, require=not bare)
     a = 1.0 - _check_confidence(confidence, nm)
     if isinstance(min_per_stratum, bool) or not isinstance(min_per_stratum, int) or min_per_stratum < 1:
         raise SettingError(nm["min_per_stratum"], min_per_stratum, "a whole number >= 1")
@@ -1078,7 +1081,11 @@ def allocate(weights: Sequence[float], *, strata: Sequence[str] | None = None, n
                 break
             total += 1
         notes += raised
-    hw = _hw(bound, sides, w, n_h, a, sig, L, s)
+    if bare:
+        hw, eb = math.inf, 1.0
+        notes.append(f"no {nm['range']} or {nm['sd']} given: the allocation carries no guarantee")
+    else:
+        hw = _hw(bound, sides, w, n_h, a, sig, L, s)
     if bound == "betting":
         notes.append("betting: sized with Hoeffding's bound; the betting interval is usually narrower")
     if bound == "bernstein":
