@@ -154,7 +154,9 @@ def next_plan_settings(assessment: Any, manifest: dict, *, plan_path: str | Path
     - ``[size]``: ``allocation`` becomes the suggested method (``neyman`` or
       ``optimal``); each ``[size.strata.<name>]`` gets the observed ``sd`` (log10
       units for a geometric mean) and the ``cost`` used, keeping its ``range``;
-      ``tolerance`` or ``n`` stay as planned, so the plan sizes the total again.
+      ``tolerance`` or ``n`` stay as planned, so the plan sizes the total again; for
+      chebyshev and cantelli (whose sizing would take the sds as known) ``n`` is set to
+      the total found with the declared ranges alone.
     - ``[draw]``: no ``seed`` or ``seed_text``, so a fresh seed is drawn and recorded.
     - ``[time]``: ``start``, ``end`` and ``skip`` move one year on (check them).
     - ``[area]``: paths are rewritten relative to the new plan file.
@@ -190,6 +192,10 @@ def next_plan_settings(assessment: Any, manifest: dict, *, plan_path: str | Path
             if STRATUM_KEYS is not None:
                 per[name] = {k: v for k, v in t.items() if k in STRATUM_KEYS and v is not None}
         size["strata"] = per
+        if realloc.bound in ("chebyshev", "cantelli") and size.get("tolerance"):
+            # the plan's sizing would take these sds as known for chebyshev/cantelli; fix the total found with
+            # the declared ranges alone, so the guarantee does not rest on last season's sds
+            size["n"] = int(realloc.total)
     # area paths relative to the new plan
     area = settings.get("area", {})
     inputs = manifest.get("inputs", {}) or {}
@@ -229,6 +235,9 @@ def _next_plan_header(assessment: Any, results_name: str) -> str:
         per = ", ".join(f"{s} {n}" for s, n in zip(r.strata, r.n))
         lines += [f"- allocation = \"{r.method}\" with the observed sd (and cost) per stratum under [size.strata.*];",
                   f"  suggested primary samples: {per} (total {r.total}, {r.bound} bound)."]
+        if r.bound in ("chebyshev", "cantelli"):
+            lines += [f"- n = {r.total}: the total that meets the tolerance with the declared range alone; the sds",
+                      "  only split it (the report's guarantee for this n takes them as known, capped at range/2)."]
     if assessment.range_void:
         lines.append("WARNING: results fell outside the declared range; raise size.range before the next draw.")
     return "\n".join(lines)

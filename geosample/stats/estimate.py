@@ -34,7 +34,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from ..errors import ResultsError, SettingError
+from ..errors import InfeasibleError, ResultsError, SettingError
 
 __all__ = [
     "ADJUST_METHODS",
@@ -845,9 +845,13 @@ def reallocate(names: Sequence[str], weights: Sequence[float], sds: Sequence[flo
     (``manifest["itinerary"]["travel_minutes_per_site"]``), else the plan's
     ``size.strata.<name>.cost``; with costs the allocation is cost-optimal
     (n_h proportional to W_h s_h / sqrt(c_h)), without them Neyman (W_h s_h).
-    The total comes from :func:`geosample.stats.sizing.allocate`: for the t bound
-    it follows from the observed sds; for the range bounds from the declared
-    ranges (the observed sds then only move effort between strata).
+    For chebyshev, cantelli, hoeffding and betting the shares come from the observed
+    sds (:func:`geosample.stats.sizing.shares`) and the total is the smallest whose
+    rounded allocation meets the tolerance by
+    :func:`geosample.stats.sizing.stratified_error_bound` with the declared ranges only:
+    the observed sds move effort between strata but never stand in for the bound. For
+    t and bernstein the total comes from :func:`geosample.stats.sizing.allocate` with
+    the observed sds (taken as known, capped at range/2).
     """
     from . import sizing
 
@@ -873,29 +877,75 @@ def reallocate(names: Sequence[str], weights: Sequence[float], sds: Sequence[flo
     costs, cost_src = _costs(names, settings, manifest)
     method = "optimal" if costs is not None and len(set(costs)) > 1 else "neyman"
     notes.append(f"costs: {cost_src}")
-    ranges = []
-    for name in names:
-        _, L = declared_support(settings, name)
-        ranges.append(L)
+    ranges = [declared_support(settings, name)[1] for name in names]
+    have_ranges = all(r is not None for r in ranges)
     tol = size.get("tolerance")
-    kw: dict[str, Any] = dict(
-        strata=tuple(names), n=None if tol else size.get("n"), tolerance=tol, method=method,
-        sd=tuple(sd_list), range=(tuple(ranges) if all(r is not None for r in ranges) else None),
-        cost=costs, min_per_stratum=int(size.get("min_per_stratum") or 2), bound=bound,
-        confidence=float(size.get("confidence", 0.95)), sides=size.get("sides", "two"),
-    )
-    alloc = sizing.allocate(tuple(float(w) for w in weights), **kw)
-    if bound == "t":
-        notes.append("the t bound: the total follows from the observed sds")
-    elif bound in RANGE_BOUNDS:
+    fixed_n = None if tol else size.get("n")
+    minimum = int(size.get("min_per_stratum") or 2)
+    confidence = float(size.get("confidence", 0.95))
+    sides = size.get("sides", "two")
+    w = tuple(float(x) for x in weights)
+    if bound in ("chebyshev", "cantelli", "hoeffding", "betting") and have_ranges:
+        # shares from the observed sds (and costs); the guarantee from the declared ranges only, so an sd
+        # estimated from a few results never stands in for a bound on the spread
+        p = sizing.shares(w, method=method, sd=tuple(sd_list), cost=costs)
+        n_h, total, raised = _range_total(sizing, w, p, tol, fixed_n, ranges, bound, sides, confidence, minimum,
+                                          names)
+        achieved_tol = sizing.stratified_half_width(w, n_h, confidence, range=tuple(ranges), bound=bound,
+                                                    sides=sides)
+        notes += list(raised)
         notes.append(f"the {bound} bound: the total follows from the declared range, not from the observed sds; "
-                     "the sds only move effort between strata")
-    notes += list(getattr(alloc, "notes", ()))
+                     "the sds only move effort between strata" + (" (sized as hoeffding)" if bound == "betting"
+                                                                   else ""))
+    else:
+        alloc = sizing.allocate(
+            w, strata=tuple(names), n=fixed_n, tolerance=tol, method=method, sd=tuple(sd_list),
+            range=tuple(ranges) if have_ranges else None, cost=costs, min_per_stratum=minimum, bound=bound,
+            confidence=confidence, sides=sides, statistic=settings.get("survey", {}).get("statistic", "mean"))
+        n_h, total, achieved_tol = tuple(int(v) for v in alloc.n), int(alloc.total), alloc.achieved_tolerance
+        notes.append(f"the {bound} bound: the total follows from the observed sds, taken as known"
+                     + (" (capped at range/2)" if have_ranges else ""))
+        notes += list(alloc.notes)
     return Reallocation(
-        method=method, strata=tuple(names), n=tuple(int(v) for v in alloc.n), total=int(alloc.total),
-        sd=tuple(sd_list), cost=costs, bound=bound, tolerance=tol,
-        achieved_tolerance=getattr(alloc, "achieved_tolerance", None), notes=tuple(notes),
+        method=method, strata=tuple(names), n=tuple(n_h), total=int(total), sd=tuple(sd_list), cost=costs,
+        bound=bound, tolerance=tol, achieved_tolerance=achieved_tol, notes=tuple(notes),
     )
+
+
+def _range_total(sizing: Any, w, p, tol, fixed_n, ranges, bound, sides, confidence, minimum, names):
+    """Rounded allocation with shares ``p``: for a fixed total, or the smallest total meeting the tolerance.
+
+    The error bound is :func:`geosample.stats.sizing.stratified_error_bound` (declared
+    ranges only); the total is found by doubling, then halving, then checked again.
+    """
+    if fixed_n:
+        n_h, raised = sizing.largest_remainder(p, int(fixed_n), minimum=minimum, labels=names)
+        return tuple(n_h), int(fixed_n), raised
+    a = 1.0 - confidence
+
+    def fit(total: int):
+        n_h, raised = sizing.largest_remainder(p, total, minimum=minimum, labels=names)
+        ok = sizing.stratified_error_bound(w, n_h, tol, range=tuple(ranges), bound=bound, sides=sides) <= a
+        return ok, n_h, raised
+
+    lo = minimum * len(w)
+    hi = lo
+    while not fit(hi)[0]:
+        lo, hi = hi + 1, hi * 2
+        if hi > 10**9:
+            raise InfeasibleError(f"the tolerance {tol!r} needs more than 10^9 samples with the {bound} bound")
+    while lo < hi:
+        mid = (lo + hi) // 2
+        if fit(mid)[0]:
+            hi = mid
+        else:
+            lo = mid + 1
+    total = hi
+    ok, n_h, raised = fit(total)
+    while not ok:  # rounding can make the bound non-monotone in the total: step up until it holds
+        total += 1
+        ok, n_h, raised = fit(total)
+    return tuple(n_h), total, raised
 
 
 # --------------------------------------------------------------------------- assess
