@@ -300,7 +300,6 @@ def test_next_plan_refusal_happens_before_any_work(design, tmp_path, capsys):
 
 
 # --------------------------------------------------------------------------- TOML emitter
-_keys = st.text(min_size=1, max_size=12).filter(lambda s: s.strip() == s or True)
 _scalars = st.one_of(st.text(max_size=30), st.integers(-10**12, 10**12), st.booleans(),
                      st.floats(allow_nan=False, allow_infinity=False), st.dates())
 

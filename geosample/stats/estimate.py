@@ -368,7 +368,7 @@ def hoeffding_half_width(weights, n_h, ranges, confidence: float, sides: str = "
     Examples
     --------
     >>> round(hoeffding_half_width([1.0], [43], [80], 0.90), 3)   # CHECKS.md row: n = 43 for d = 15
-    14.834
+    14.931
     """
     a = _alpha(confidence)
     w = np.asarray(weights, float)

@@ -5,7 +5,6 @@ Goals (issue 6): assess 10,000 results in under 2 s; the betting interval for n 
 from __future__ import annotations
 
 import sys
-import time
 from pathlib import Path
 
 import numpy as np
