@@ -382,7 +382,7 @@ def test_stratified_functions_against_independent_formulas():
     V = _cheb_V(w, n_h, L_h)
     assert math.isclose(stratified_error_bound(w, n_h, 20, range=L_h, bound="cantelli", sides="one"),
                         V / (V + 400))
-    # t: normal-theory stratified variance with Welch-Satterthwaite df (Cochran 1977, eq. 5.16), via scipy
+    # t: normal-theory stratified variance with Welch-Satterthwaite df (Cochran 1977, ch. 5), via scipy
     sd_h = (10, 25, 15)
     v = [wh**2 * s**2 / nh for wh, s, nh in zip(w, sd_h, n_h)]
     df = sum(v) ** 2 / sum(x**2 / (nh - 1) for x, nh in zip(v, n_h))

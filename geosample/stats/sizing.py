@@ -780,7 +780,7 @@ def shares(weights: Sequence[float], *, method: str = "proportional", sd: Any = 
     """Real-valued shares of the total for each stratum (they add up to 1).
 
     ``proportional``: ``W_h``; ``equal``: ``1/H``; ``neyman``: ``W_h S_h``;
-    ``optimal``: ``W_h S_h / sqrt(c_h)`` (Cochran 1977, sections 5.5 and 5.9), with
+    ``optimal``: ``W_h S_h / sqrt(c_h)`` (Cochran 1977, ch. 5), with
     ``S_h`` the stratum's sd, or range/2 without one (Popoviciu), and ``c_h`` the cost
     of a sample (1 when not given).
 
