@@ -351,6 +351,12 @@ def test_statement_wording():
     assert "probability" not in (text + dec).lower()
 
 
+def test_one_sided_decision_wording():
+    dec = decision_statement("not established", criterion=126, confidence=0.9, statistic="mean", sides="one")
+    assert dec == ("The bound does not clear the criterion 126, so it is not established that the mean is below the "
+                   "criterion at the 90% confidence level.")
+
+
 def test_t_statement_says_approximately():
     text = statement(statistic="mean", parameter="", frame_label="F", season=("a", "b"), figure="1 ± 1",
                      confidence=0.9, bound="t", sides="two", direction="below")

@@ -801,7 +801,7 @@ def statement(*, statistic: str, parameter: str, frame_label: str, season: tuple
 
 
 def decision_statement(decision: str | None, *, criterion: float | None, confidence: float, statistic: str,
-                       sides: str, units: str = "") -> str:
+                       sides: str, units: str = "", direction: str = "below") -> str:
     """The decision in words, e.g. "the whole interval lies below the criterion 126, so ..."."""
     what = "geometric mean" if statistic == "geomean" else "mean"
     pct = _pct(confidence)
@@ -815,6 +815,10 @@ def decision_statement(decision: str | None, *, criterion: float | None, confide
     if decision == "above":
         return (f"The whole {thing} lies above the criterion {c}, so the {what} is above the criterion at the "
                 f"{pct} confidence level.")
+    if sides == "one":
+        side = "below" if direction == "below" else "above"
+        return (f"The {thing} does not clear the criterion {c}, so it is not established that the {what} is {side} "
+                f"the criterion at the {pct} confidence level.")
     return (f"The {thing} reaches the criterion {c}, so whether the {what} is below or above the criterion is not "
             f"established at the {pct} confidence level.")
 
@@ -1166,6 +1170,8 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
             f"stratum {', '.join(repr(e) for e in empty)} has no usable result, so the stratified mean over the "
             "frame cannot be estimated. Sample its primary sites (or its reserves, in reserve_rank order) and "
             "add the results.")
+    if criterion is not None and statistic == "geomean" and criterion <= 0:
+        raise SettingError("survey.criterion", criterion, "a number above 0 for a geometric mean (its log10 is taken)")
     a_crit = None if criterion is None else (math.log10(criterion) if statistic == "geomean" else float(criterion))
     # which bound can be used
     bound = planned
@@ -1250,7 +1256,7 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
     text = statement(statistic=statistic, parameter=survey.get("parameter", ""), frame_label=label, season=season,
                      figure=figure, confidence=confidence, bound=bound, sides=sides, direction=direction)
     dtext = decision_statement(decision, criterion=criterion, confidence=confidence, statistic=statistic,
-                               sides=sides, units=units)
+                               sides=sides, units=units, direction=direction)
     cens = sum(s.censored_left for s in strata), sum(s.censored_right for s in strata)
     if cens[0]:
         notes.append(f"{cens[0]} result(s) below a detection limit enter at the limit, which can only raise the "
