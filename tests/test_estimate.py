@@ -539,3 +539,9 @@ def test_range_bound_total_meets_the_tolerance_by_the_declared_range():
     share = w * np.array([30, 10, 5]) / np.sum(w * np.array([30, 10, 5]))
     assert np.allclose(np.array(r.n) / r.total, share, atol=0.02 + 2 / r.total)
     assert any("declared range" in n for n in r.notes)
+
+
+def test_bernstein_with_a_single_result_falls_back_to_chebyshev_and_says_so():
+    vals = {"North basin": [40, 55, 62], "South basin": [88, 95], "Reed bay": [120]}
+    a = assess(fake_results(vals), fake_manifest(range=200, bound="bernstein", extra_size="sd = 30"))
+    assert a.bound == "chebyshev" and any("Bernstein" in n for n in a.notes)

@@ -1188,7 +1188,9 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
                      "The interval is a Student t interval instead, whose confidence is approximate (see its "
                      "assumption). Fix the range in the plan for the next season.")
     if bound == "bernstein" and any(s.y.size < 2 for s in strata):
-        bound = "t" if all(s.y.size >= 2 for s in strata) else "chebyshev"
+        bound = "chebyshev"
+        notes.append("The empirical Bernstein bound needs at least 2 results per stratum to estimate the spread; "
+                     "the Chebyshev bound (which needs only the declared range) is used instead.")
     if bound == "t":
         short = [s.name for s in strata if s.y.size < 2]
         if short:
