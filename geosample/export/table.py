@@ -1,0 +1,186 @@
+"""The field schedule as a table: ``schedule.csv``.
+
+One row per site, primaries first (in the order the crew visits them: by date,
+then route order), then reserves (by stratum in frame order, then reserve rank).
+The columns are pinned (``DEVELOPERS.md``)::
+
+    site_id, stratum, role, reserve_rank, visit_date, planned_time, day,
+    route_order, lat, lon, x, y, result, qualifier, sampled_at, sampler, notes
+
+- ``day`` is the 1-based number of the crew day: the rank of the visit's date
+  among the dates that have visits (day 1 is the first day out). Reserves have
+  ``visit_date``, ``planned_time``, ``day`` and ``route_order`` blank.
+- ``planned_time`` is ISO 8601 in the survey's time zone with its UTC offset,
+  to the second (``2027-06-14T09:32:00-05:00``).
+- ``lat``/``lon`` are WGS 84 degrees with 6 decimals (about 0.1 m); ``x``/``y``
+  are metres in the frame's CRS with 1 decimal.
+- ``result, qualifier, sampled_at, sampler, notes`` are empty, for the crew.
+
+The file is UTF-8 without a byte-order mark, with ``"\\n"`` line endings and
+the :mod:`csv` module's minimal quoting, so identical designs give identical
+bytes. A text cell that a spreadsheet would read as a formula (it starts with
+``=``, ``+``, ``-``, ``@``, a tab or a carriage return) gets a leading
+apostrophe (OWASP, "CSV Injection", common practice); numeric cells never do,
+so a negative longitude stays a number. Readers of the file
+(:mod:`geosample.results`, :func:`geosample.audit.verify`) drop that apostrophe.
+"""
+from __future__ import annotations
+
+import csv
+import datetime as dt
+from collections.abc import Iterable
+from pathlib import Path
+
+from ..model import Design, Visit
+
+__all__ = [
+    "COLUMNS",
+    "CREW_COLUMNS",
+    "TEXT_COLUMNS",
+    "FILE_NAME",
+    "schedule_rows",
+    "write_schedule",
+    "ordered_visits",
+    "day_numbers",
+    "format_time",
+    "neutralise_formula",
+]
+
+FILE_NAME = "schedule.csv"
+
+#: The crew fills these in.
+CREW_COLUMNS = ("result", "qualifier", "sampled_at", "sampler", "notes")
+
+#: Every column of ``schedule.csv``, in order.
+COLUMNS = (
+    "site_id", "stratum", "role", "reserve_rank", "visit_date", "planned_time", "day", "route_order",
+    "lat", "lon", "x", "y",
+) + CREW_COLUMNS
+
+#: Columns holding user text (the only ones neutralised against formula injection).
+TEXT_COLUMNS = ("site_id", "stratum", "role") + CREW_COLUMNS
+
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def neutralise_formula(text: str) -> str:
+    """Prefix ``text`` with an apostrophe if a spreadsheet would run it as a formula.
+
+    Examples
+    --------
+    >>> neutralise_formula("=HYPERLINK(1)")
+    "'=HYPERLINK(1)"
+    >>> neutralise_formula("North basin")
+    'North basin'
+    """
+    return "'" + text if text.startswith(_FORMULA_START) else text
+
+
+def format_time(t: dt.datetime | None) -> str:
+    """ISO 8601 to the second with the UTC offset; empty for None.
+
+    Examples
+    --------
+    >>> format_time(dt.datetime(2027, 6, 14, 9, 32, 5, 700, tzinfo=dt.timezone(dt.timedelta(hours=-5))))
+    '2027-06-14T09:32:05-05:00'
+    """
+    if t is None:
+        return ""
+    if t.tzinfo is None or t.utcoffset() is None:
+        raise ValueError(f"planned time {t!r} has no time zone; the schedule needs timezone-aware times")
+    return t.isoformat(timespec="seconds")
+
+
+def _stratum_order(design: Design) -> dict[str, int]:
+    return {s.name: i for i, s in enumerate(design.frame.strata)}
+
+
+def ordered_visits(design: Design) -> list[Visit]:
+    """The visits in schedule order: primaries by date and route order, then reserves.
+
+    Reserves follow by stratum (frame order) and ``reserve_rank``; ties are
+    broken by ``site_id`` so the order never depends on the input order.
+    """
+    order = _stratum_order(design)
+    big = len(order)
+    primaries = [v for v in design.schedule.visits if v.role == "primary"]
+    reserves = [v for v in design.schedule.visits if v.role != "primary"]
+    primaries.sort(key=lambda v: (v.visit_date or dt.date.max,
+                                  v.route_order if v.route_order is not None else 10**9,
+                                  v.site_id))
+    reserves.sort(key=lambda v: (order.get(v.stratum, big), v.stratum, v.reserve_rank, v.site_id))
+    return primaries + reserves
+
+
+def day_numbers(visits: Iterable[Visit]) -> dict[dt.date, int]:
+    """Date -> 1-based crew-day number, counting only dates that have visits.
+
+    Examples
+    --------
+    >>> vs = [Visit("A", "S", "primary", 0, 0, 0, 0, 0, visit_date=dt.date(2027, 6, d)) for d in (9, 2, 9)]
+    >>> day_numbers(vs)
+    {datetime.date(2027, 6, 2): 1, datetime.date(2027, 6, 9): 2}
+    """
+    dates = sorted({v.visit_date for v in visits if v.visit_date is not None and v.role == "primary"})
+    return {d: i + 1 for i, d in enumerate(dates)}
+
+
+def _row(v: Visit, days: dict[dt.date, int]) -> dict[str, str]:
+    scheduled = v.role == "primary" and v.visit_date is not None
+    row = {
+        "site_id": v.site_id,
+        "stratum": v.stratum,
+        "role": v.role,
+        "reserve_rank": str(int(v.reserve_rank)),
+        "visit_date": v.visit_date.isoformat() if scheduled else "",
+        "planned_time": format_time(v.planned_time) if scheduled else "",
+        "day": str(days[v.visit_date]) if scheduled else "",
+        "route_order": str(int(v.route_order)) if scheduled and v.route_order is not None else "",
+        "lat": f"{v.lat:.6f}",
+        "lon": f"{v.lon:.6f}",
+        "x": f"{v.x:.1f}",
+        "y": f"{v.y:.1f}",
+    }
+    row.update({c: "" for c in CREW_COLUMNS})
+    for c in TEXT_COLUMNS:
+        row[c] = neutralise_formula(row[c])
+    return row
+
+
+def schedule_rows(design: Design) -> list[dict[str, str]]:
+    """The cells of ``schedule.csv``, exactly as written (text cells already neutralised).
+
+    Parameters
+    ----------
+    design : Design
+
+    Returns
+    -------
+    list of dict
+        One dict per row, keys :data:`COLUMNS` in order, values strings.
+    """
+    visits = ordered_visits(design)
+    days = day_numbers(visits)
+    return [_row(v, days) for v in visits]
+
+
+def write_schedule(design: Design, path: str | Path) -> Path:
+    """Write ``schedule.csv`` (see the module docstring for the format).
+
+    Parameters
+    ----------
+    design : Design
+    path : str or Path
+        The file to write (replaced if it exists).
+
+    Returns
+    -------
+    Path
+        ``path``.
+    """
+    path = Path(path)
+    with open(path, "w", encoding="utf-8", newline="") as fh:
+        writer = csv.DictWriter(fh, fieldnames=list(COLUMNS), lineterminator="\n", quoting=csv.QUOTE_MINIMAL)
+        writer.writeheader()
+        writer.writerows(schedule_rows(design))
+    return path
