@@ -395,8 +395,11 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
     statistic = settings.get("survey", {}).get("statistic", "mean")
     tz = _zone(settings.get("survey", {}).get("timezone"))
     design = {_cell(r.get("site_id")): r for r in schedule_rows}
-    known = set(header)
-    extra_cols = [h for h in header if h not in ("site_id", "result", "qualifier", "sampled_at")]
+    # columns the crew added (and their sampler / notes) are kept with each record; the design's own columns
+    # come from the design
+    design_cols = {"site_id", "result", "qualifier", "sampled_at", "stratum", "role", "reserve_rank", "visit_date",
+                   "planned_time", "day", "route_order", "lat", "lon", "x", "y"}
+    extra_idx = [(h, i) for i, h in enumerate(header) if h not in design_cols and col.get(h) == i]
 
     def get(cells: list[str], key: str) -> str:
         i = col.get(key)
@@ -446,7 +449,7 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
             row=row, site_id=sid, stratum=_cell((d or {}).get("stratum")), role=_cell((d or {}).get("role")),
             reserve_rank=_rank((d or {}).get("reserve_rank")), raw=raw, value=value, censored=cens,
             status=status_final, used=False, qualifier=qual, sampled_at=when, attempted=attempted,
-            extra=tuple((h, get(cells, h)) for h in extra_cols if h in known),
+            extra=tuple((h, cells[i].strip() if i < len(cells) else "") for h, i in extra_idx),
         ))
     if not records:
         raise ResultsError(f"{name} has a header but no data rows. Fill in the 'result' column of the design's "

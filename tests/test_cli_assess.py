@@ -328,3 +328,8 @@ def test_toml_string_escaping():
 def test_tomli_w_is_not_a_dependency():
     pyproject = (Path(__file__).parents[1] / "pyproject.toml").read_text()
     assert "tomli_w" not in pyproject and "tomli-w" not in pyproject
+
+
+def test_toml_key_with_a_trailing_newline_is_quoted():
+    # found by hypothesis: a regex '$' also matches before a final newline
+    assert tomllib.loads(toml_dumps({"0\n": {"k\n": 1}})) == {"0\n": {"k\n": 1}}

@@ -29,7 +29,7 @@ __all__ = ["HTML_NAME", "toml_dumps", "next_plan_settings", "write_next_plan", "
 
 HTML_NAME = "assessment.html"
 
-_BARE = re.compile(r"^[A-Za-z0-9_-]+$")
+_BARE = re.compile(r"[A-Za-z0-9_-]+")
 _ESCAPES = {"\\": "\\\\", '"': '\\"', "\b": "\\b", "\t": "\\t", "\n": "\\n", "\f": "\\f", "\r": "\\r"}
 
 
@@ -48,7 +48,7 @@ def _toml_string(s: str) -> str:
 
 def _toml_key(k: str) -> str:
     k = str(k)
-    return k if _BARE.match(k) else _toml_string(k)
+    return k if _BARE.fullmatch(k) else _toml_string(k)
 
 
 def _toml_value(v: Any) -> str:

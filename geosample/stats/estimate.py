@@ -574,12 +574,11 @@ def betting_sequence(x, *, alpha: float, sides: str = "two", direction: str = "b
                 continue
             hit = (math.log(w) + _log_k(x, mm, lam, c, sign)) >= thresh
             out[i : i + step] = np.where(hit.any(axis=0), np.argmax(hit, axis=0), n)
-    t = np.arange(n)[:, None]
-    rej_plus = t_plus[None, :] <= t  # (n, grid): rejected by K+ at or before time t
-    rej_minus = t_minus[None, :] <= t
-    # K+ rejects a prefix of the grid, K- a suffix
-    k_lo = rej_plus.sum(axis=1)  # index of the first grid mean K+ has not rejected
-    k_hi = grid - 1 - rej_minus.sum(axis=1)  # index of the last grid mean K- has not rejected
+    # K+ rejects a prefix of the grid, K- a suffix: after t + 1 observations the first grid mean K+ has not
+    # rejected is the count of grid means rejected by then
+    t = np.arange(n)
+    k_lo = np.searchsorted(np.sort(t_plus), t, side="right")
+    k_hi = grid - 1 - np.searchsorted(np.sort(t_minus), t, side="right")
     low[1:] = np.where(k_lo == 0, 0.0, m[np.clip(k_lo - 1, 0, grid - 1)])
     high[1:] = np.where(k_hi == grid - 1, 1.0, m[np.clip(k_hi + 1, 0, grid - 1)])
     crossed = low > high
