@@ -1199,14 +1199,17 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
                 + " needs at least 2 per stratum to estimate the spread. Sample a reserve there (in reserve_rank "
                 "order), or declare a range that the results respect.")
     iv, _, seqs = _interval(bound, strata, confidence, sides, direction, path=a_crit is not None)
-    clip = bound in RANGE_BOUNDS and not set(getattr(results, "outside_support", ()))
+    # a mean of concentrations or counts is not negative: the interval's lower end is cut at the weighted lower
+    # end of the range (0 unless size.lower says otherwise); the upper end is left alone, since the plan
+    # declares the range's length, not where it ends (betting works inside the range by construction)
+    clip = (bound in RANGE_BOUNDS and bound != "betting" and statistic == "mean"
+            and not set(getattr(results, "outside_support", ())))
     if clip:
-        w = np.array([s.weight for s in strata])
-        support = (float(w @ [s.lower for s in strata]), float(w @ [s.lower + s.L for s in strata]))
-        clipped = _clip(iv, *support)
+        floor = float(np.dot([s.weight for s in strata], [s.lower for s in strata]))
+        clipped = _clip(iv, floor, math.inf)
         if clipped is not iv:
-            notes.append(f"the interval is cut to the declared range of the mean, {support[0]:g} to {support[1]:g} "
-                         "(the mean cannot lie outside it)")
+            notes.append(f"the interval's lower end is cut at {floor:g}: the mean cannot be lower (results are not "
+                         "below the lower end of the declared range)")
         iv = clipped
     notes += list(iv.notes)
     decision = decide(iv.low, iv.high, a_crit, sides, direction)
@@ -1218,7 +1221,7 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
         one = _interval(bound if not (bound == "t" and s.y.size < 2) else "chebyshev", [
             _Stratum(s.name, 1.0, s.y, s.lower, s.L, s.n_planned, 0, 0)], confidence, sides, direction)[0]
         if clip:
-            one = _clip(one, s.lower, s.lower + s.L)
+            one = _clip(one, s.lower, math.inf)
         p = None
         if a_crit is not None:
             p = stratum_pvalue(bound, s.y, a_crit, L=s.L, lower=s.lower, confidence=confidence, sides=sides,
