@@ -38,8 +38,7 @@ from .errors import InputFileError, PlanError, SettingError
 
 __all__ = ["SCHEMA", "Plan", "Key", "load_plan", "load_plan_text", "plan_from_settings", "sha256_file"]
 
-BOUNDS = ("chebyshev", "cantelli", "hoeffding", "bernstein", "t", "betting")
-ALLOCATIONS = ("proportional", "equal", "neyman", "optimal")
+from .stats.sizing import ALLOCATION_METHODS as ALLOCATIONS, BOUNDS  # the choices are defined once, there
 DRAW_METHODS = ("simple", "balanced", "grts")
 WEEKDAYS = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
 GENERATED_STRATA = ("shore-bands", "zones")
