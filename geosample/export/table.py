@@ -21,7 +21,8 @@ the :mod:`csv` module's minimal quoting, so identical designs give identical
 bytes. A text cell that a spreadsheet would read as a formula (it starts with
 ``=``, ``+``, ``-``, ``@``, a tab or a carriage return) gets a leading
 apostrophe (OWASP, "CSV Injection", common practice); numeric cells never do,
-so a negative longitude stays a number. Readers of the file
+so a negative longitude stays a number. A line break inside a text cell is
+written as ``"\\n"`` (the cell is then quoted). Readers of the file
 (:mod:`geosample.results`, :func:`geosample.audit.verify`) drop that apostrophe.
 """
 from __future__ import annotations
@@ -143,8 +144,14 @@ def _row(v: Visit, days: dict[dt.date, int]) -> dict[str, str]:
     }
     row.update({c: "" for c in CREW_COLUMNS})
     for c in TEXT_COLUMNS:
-        row[c] = neutralise_formula(row[c])
+        row[c] = _one_line_ending(neutralise_formula(row[c]))
     return row
+
+
+def _one_line_ending(text: str) -> str:
+    # The csv module quotes a cell holding a character of the line terminator ("\n")
+    # but not a lone "\r", which readers take for the end of the row.
+    return text.replace("\r\n", "\n").replace("\r", "\n")
 
 
 def schedule_rows(design: Design) -> list[dict[str, str]]:
