@@ -189,7 +189,7 @@ def to_lonlat(crs: Any, x: Any, y: Any) -> tuple[np.ndarray, np.ndarray]:
     --------
     >>> lon, lat = to_lonlat("EPSG:32616", [500000.0], [5094000.0])
     >>> round(float(lon[0]), 6), round(float(lat[0]), 3)
-    (-87.0, 45.991)
+    (-87.0, 46.0)
     """
     from pyproj import CRS
 
@@ -1014,7 +1014,9 @@ def _access_points(access: Any, crs: Any, water: Any, snap_m: float, notes: list
         if dist > 0:
             p = nearest_points(water, geom)[0]
             x, y = p.x, p.y
-            notes.append(f"access point {name!r} is {dist:,.1f} m from the water; it was moved to the nearest shore.")
+            if dist >= 1.0:  # closer than a metre is drawing precision, not a point on land
+                notes.append(f"access point {name!r} is {dist:,.1f} m from the water (on land); it was moved to "
+                             "the nearest shore.")
         out.append((name, float(x), float(y), dist))
     return out
 
@@ -1112,7 +1114,7 @@ def build_frame(
 
     notes: list[str] = []
     _check_gdf(water, "area.water", "polygon")
-    notes.extend(_layer_notes(water))
+    layer_notes = _layer_notes(water)  # already logged by read_layer
     _step(progress, "choosing the frame CRS")
     choice = choose_crs(water)
     crs = choice.crs
@@ -1135,7 +1137,7 @@ def build_frame(
         _step(progress, "removing the exclusion zones")
     for i, item in enumerate(exclude or ()):
         label, gdf = item if isinstance(item, tuple) else (f"exclusion {i + 1}", item)
-        notes.extend(_layer_notes(gdf))
+        layer_notes += _layer_notes(gdf)
         eg = _union(_project(gdf, crs, f"area.exclude ({label})", "polygon", notes))
         excl_union.append(eg)
         after = _polygonal(frame_geom.difference(eg))
@@ -1160,7 +1162,7 @@ def build_frame(
         raise SettingError("area.reach_m", reach_m, "reach_m together with an access point layer",
                            fix='add access = "launches.geojson", or remove reach_m')
     if access is not None:
-        notes.extend(_layer_notes(access))
+        layer_notes += _layer_notes(access)
         raw = _access_points(access, crs, water_geom, float(access_snap_m), notes)
         lon, lat = to_lonlat(crs, [p[1] for p in raw], [p[2] for p in raw])
         points = [AccessPoint(name=n, x=x, y=y, lat=float(la), lon=float(lo_), snapped_m=s)
@@ -1207,7 +1209,7 @@ def build_frame(
         raise SettingError("area.strata", strata, 'a polygon layer, "shore-bands" or "zones"')
     else:
         _check_gdf(strata, "area.strata", "polygon")
-        notes.extend(_layer_notes(strata))
+        layer_notes += _layer_notes(strata)
         _step(progress, "clipping the strata to the frame")
         sg = _project(strata, crs, "area.strata", "polygon", notes)
         pieces = _strata_from_layer(sg, strata_field, frame_geom, notes)
@@ -1223,6 +1225,6 @@ def build_frame(
         water_area_m2=water_area,
         removed=tuple(removed),
         access=tuple(points),
-        warnings=tuple(dict.fromkeys(notes)),
+        warnings=tuple(dict.fromkeys(layer_notes + notes)),
         router=router,
     )
