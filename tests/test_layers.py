@@ -1,0 +1,140 @@
+"""Reading layers: formats, CRS, geometry kinds, repairs and the messages of refusals."""
+from __future__ import annotations
+
+import geopandas
+import pytest
+import shapely
+
+from conftest import lonlat_box
+from geosample.errors import GeosampleError, InputFileError, LayerError, SettingError
+from geosample.layers import read_layer
+
+
+def _gdf(geoms, crs=4326, **cols):
+    return geopandas.GeoDataFrame(cols or None, geometry=list(geoms), crs=crs)
+
+
+def test_reads_geojson_and_keeps_attributes(write_layer, lake_lonlat):
+    path = write_layer("lake.geojson", lake_lonlat)
+    gdf = read_layer(path)
+    assert gdf.crs.to_epsg() == 4326
+    assert list(gdf["name"]) == ["Tarn Wessel"]
+    assert gdf.attrs["geosample_warnings"] == []
+    # same polygon back (GeoJSON keeps 7+ decimals)
+    assert gdf.geometry.iloc[0].symmetric_difference(lake_lonlat.geometry.iloc[0]).area < 1e-12
+
+
+def test_reads_geopackage_layer_by_name(write_layer, lake_lonlat):
+    path = write_layer("layers.gpkg", lake_lonlat, layer="water")
+    zones = _gdf([lonlat_box(0, 0, 0.01, 0.01)], zone=["West"])
+    zones.to_file(path, layer="zones", engine="pyogrio")
+    water = read_layer(path, layer="water")
+    strata = read_layer(path, layer="zones", what="strata")
+    assert list(water["name"]) == ["Tarn Wessel"] and list(strata["zone"]) == ["West"]
+
+
+def test_geopackage_with_several_layers_needs_a_layer_name(write_layer, lake_lonlat):
+    path = write_layer("layers.gpkg", lake_lonlat, layer="water")
+    lake_lonlat.to_file(path, layer="old_water", engine="pyogrio")
+    with pytest.raises(LayerError) as err:
+        read_layer(path)
+    msg = str(err.value)
+    assert "'water'" in msg and "'old_water'" in msg and "area.water_layer" in msg
+    with pytest.raises(LayerError, match="has no layer 'lake'.*'old_water'"):
+        read_layer(path, layer="lake")
+
+
+def test_reads_shapefile(write_layer, square_lake):
+    path = write_layer("lake.shp", square_lake)
+    gdf = read_layer(path)
+    assert gdf.crs.to_epsg() == 32614
+    assert gdf.geometry.iloc[0].area == pytest.approx(4e6)
+
+
+def test_missing_file_names_path_and_plan_key(tmp_path):
+    missing = tmp_path / "nowhere" / "lake.geojson"
+    with pytest.raises(InputFileError) as err:
+        read_layer(missing, what="area.water")
+    msg = str(err.value)
+    assert str(missing) in msg and "area.water" in msg and "relative to the plan file" in msg
+    assert isinstance(err.value, OSError) and isinstance(err.value, GeosampleError)
+
+
+def test_unreadable_file_is_an_input_file_error(tmp_path):
+    path = tmp_path / "broken.geojson"
+    path.write_text("this is not GeoJSON {", encoding="utf-8")
+    with pytest.raises(InputFileError, match="cannot be read as a spatial layer.*GeoJSON, GeoPackage"):
+        read_layer(path)
+
+
+def test_layer_without_crs_is_refused_with_the_way_to_declare_one(write_layer, square_lake):
+    path = write_layer("lake.shp", square_lake)
+    path.with_suffix(".prj").unlink()  # a Shapefile without .prj has no CRS
+    with pytest.raises(LayerError) as err:
+        read_layer(path, what="area.water")
+    msg = str(err.value)
+    assert "no coordinate reference system" in msg and 'crs = "EPSG:' in msg and ".prj" in msg
+
+
+def test_declared_crs_is_assigned_only_when_the_file_has_none(write_layer, square_lake):
+    path = write_layer("lake.shp", square_lake)
+    path.with_suffix(".prj").unlink()
+    gdf = read_layer(path, crs="EPSG:32614")
+    assert gdf.crs.to_epsg() == 32614
+    assert any("assumed" in w for w in gdf.attrs["geosample_warnings"])
+    with_prj = write_layer("lake2.shp", square_lake)
+    assert read_layer(with_prj, crs="EPSG:4326").crs.to_epsg() == 32614  # its own CRS wins
+
+
+def test_unknown_declared_crs_is_a_setting_error(write_layer, square_lake):
+    path = write_layer("lake.shp", square_lake)
+    path.with_suffix(".prj").unlink()
+    with pytest.raises(SettingError, match="area.crs = 'EPSG:99999999'"):
+        read_layer(path, crs="EPSG:99999999")
+
+
+def test_lines_instead_of_polygons(write_layer):
+    line = shapely.LineString([(-97.55, 46.05), (-97.54, 46.06)])
+    path = write_layer("shore.geojson", _gdf([line]))
+    with pytest.raises(LayerError) as err:
+        read_layer(path, what="area.water", kind="polygon")
+    msg = str(err.value)
+    assert "1 LineString" in msg and "polygons" in msg and "Polygon, MultiPolygon" in msg
+
+
+def test_polygons_where_points_are_needed(write_layer, lake_lonlat):
+    path = write_layer("access.geojson", lake_lonlat)
+    with pytest.raises(LayerError, match="area.access.*Polygon.*needs points"):
+        read_layer(path, what="access", kind="point")
+
+
+def test_points_where_polygons_are_needed(write_layer):
+    path = write_layer("pts.geojson", _gdf([shapely.Point(-97.55, 46.05)]))
+    with pytest.raises(LayerError, match="1 Point.*area.exclude needs polygons"):
+        read_layer(path, what="exclude")
+
+
+def test_empty_layer(write_layer, lake_lonlat):
+    path = write_layer("empty.gpkg", lake_lonlat.iloc[0:0], layer="water")
+    with pytest.raises(LayerError, match="has no features"):
+        read_layer(path, what="area.water")
+
+
+def test_invalid_polygon_is_repaired_with_a_warning_naming_it(write_layer):
+    bowtie = shapely.Polygon([(-97.56, 46.04), (-97.54, 46.06), (-97.54, 46.04), (-97.56, 46.06)])
+    ok = lonlat_box(0.02, 0.0, 0.03, 0.01)
+    path = write_layer("lakes.geojson", _gdf([ok, bowtie], name=["Good Pond", "Knot Pond"]))
+    gdf = read_layer(path)
+    assert gdf.geometry.is_valid.all()
+    warnings = gdf.attrs["geosample_warnings"]
+    assert len(warnings) == 1
+    assert "feature 1" in warnings[0] and "'Knot Pond'" in warnings[0] and "make_valid" in warnings[0]
+    # make_valid keeps both triangles of the bow tie: each has base 0.02 and height 0.01 (by hand)
+    assert gdf.geometry.iloc[1].area == pytest.approx(2 * 0.5 * 0.02 * 0.01, rel=1e-6)
+
+
+def test_features_without_geometry_are_dropped_with_a_warning(write_layer, lake_lonlat):
+    gdf = geopandas.GeoDataFrame({"name": ["a", "b"]}, geometry=[lake_lonlat.geometry.iloc[0], None], crs=4326)
+    path = write_layer("lake.gpkg", gdf, layer="w")
+    out = read_layer(path)
+    assert len(out) == 1 and "without a geometry" in out.attrs["geosample_warnings"][0]
