@@ -449,7 +449,7 @@ class WaterRouter:
             nodes, prv, nxt = _reflex_vertices(shrunk)
             if len(nodes) <= max_nodes or shrunk.is_empty:
                 break
-            t *= 1.5
+            t *= max(1.5, (len(nodes) / max_nodes) ** 2)  # node counts fall about as t ** -0.5
         ok = self.clearance_lower_bound(nodes) >= rho
         nodes, prv, nxt = nodes[ok], prv[ok], nxt[ok]
         self._shrunk = shrunk
@@ -462,16 +462,21 @@ class WaterRouter:
         n = len(nodes)
         self.n_nodes = n
         rows, cols, wts = [], [], []
-        block = max(1, 400_000 // max(n, 1))
+        ua, ub = prv - nodes, nxt - nodes  # each node's two shore edges
+        block = max(1, 1_000_000 // max(n, 1))
         for start in range(0, n, block):
             ii = np.arange(start, min(n, start + block))
-            i, j = np.meshgrid(ii, np.arange(n), indexing="ij")
-            keep = j > i
-            i, j = i[keep], j[keep]
+            jj = np.arange(start, n)
+            dx = nodes[None, jj, 0] - nodes[ii, None, 0]
+            dy = nodes[None, jj, 1] - nodes[ii, None, 1]
+            # tangent at i: both shore edges of i on one side of the line i-j; the same at j
+            tan = ((dx * ua[ii, None, 1] - dy * ua[ii, None, 0]) * (dx * ub[ii, None, 1] - dy * ub[ii, None, 0]) >= 0)
+            tan &= (dx * ua[None, jj, 1] - dy * ua[None, jj, 0]) * (dx * ub[None, jj, 1] - dy * ub[None, jj, 0]) >= 0
+            tan &= jj[None, :] > ii[:, None]
+            bi, bj = np.nonzero(tan)
+            i, j = ii[bi], jj[bj]
             if not i.size:
                 continue
-            tan = _tangent(nodes[i], prv[i], nxt[i], nodes[j]) & _tangent(nodes[j], prv[j], nxt[j], nodes[i])
-            i, j = i[tan], j[tan]
             vis = self.visible(nodes[i], nodes[j])
             i, j = i[vis], j[vis]
             rows.append(i), cols.append(j), wts.append(np.hypot(*(nodes[j] - nodes[i]).T))
@@ -953,9 +958,12 @@ def _finish_strata(pieces: list[tuple[str, Any]], codes: list[str] | None, frame
 
     frame_area = _area(frame)
     pieces = _check_overlaps(pieces, frame_area, notes) if len(pieces) > 1 else pieces
-    covered = _polygonal(shapely.union_all([g for _, g in pieces])) if pieces else shapely.Polygon()
-    rest = _polygonal(frame.difference(covered))
-    rest_area = _area(rest)
+    if len(pieces) == 1 and pieces[0][1] is frame:
+        rest, rest_area = shapely.Polygon(), 0.0  # the whole frame is the one stratum
+    else:
+        covered = _polygonal(shapely.union_all([g for _, g in pieces])) if pieces else shapely.Polygon()
+        rest = _polygonal(frame.difference(covered))
+        rest_area = _area(rest)
     if rest_area > _SLIVER_RTOL * frame_area:
         if remainder is None:
             raise LayerError(
@@ -1175,7 +1183,7 @@ def build_frame(
         _step(progress, "measuring the over-water reach from the access points")
         zone, info = router.reach_zone([[p.x, p.y] for p in points], float(reach_m),
                                        resolution_m=reach_resolution_m)
-        after = _polygonal(frame_geom.intersection(zone))
+        after = zone if frame_geom is water_geom else _polygonal(frame_geom.intersection(zone))
         record("reach_m", frame_geom, after,
                f"kept water within {reach_m:g} m over water of the nearest access point (grid {info['cell_m']:.1f} m, "
                f"stated error at most {info['error_m']:.0f} m)")
