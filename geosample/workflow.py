@@ -144,7 +144,8 @@ def run_plan(plan_path: str | Path, out: str | Path, *, overwrite: bool = False,
         except OSError as exc:
             log.warning("could not append to the draw record %s (%s); this draw is not recorded there", rec,
                         exc.strerror)
-    for w in tuple(design.frame.warnings) + tuple(design.draw.warnings) + tuple(design.schedule.warnings):
+    # (the frame's warnings were logged by geometry as they arose)
+    for w in tuple(design.draw.warnings) + tuple(design.schedule.warnings):
         log.warning(w)
     return PlanRun(design, out, written, rec)
 
