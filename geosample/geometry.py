@@ -626,6 +626,7 @@ class WaterRouter:
             plus three cells) and ``method``.
         """
         import shapely
+        from scipy import ndimage
         from scipy.sparse.csgraph import dijkstra
 
         water = self.water
@@ -709,7 +710,9 @@ class WaterRouter:
         field = np.full((ny, nx), np.inf)
         field[open_] = dcell
         # carry distances into the shore strip the grid cannot enter (a few cells wide)
-        for _ in range(int(math.ceil(2.5 + 1.12 + 2 * _SQRT2 * self.cell_m / rg)) + 1):
+        # cells that may hold some water: centre in it, or next to such a cell (the shore's partial cells)
+        wet = ndimage.binary_dilation(wet, structure=np.ones((3, 3), dtype=bool))
+        for _ in range(2 * int(math.ceil(2.5 + 1.12 + 2 * _SQRT2 * self.cell_m / rg)) + 2):
             best = field.copy()
             for dy in (-1, 0, 1):
                 for dx in (-1, 0, 1):

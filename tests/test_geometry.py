@@ -455,3 +455,16 @@ def test_frame_properties(lake, ex, kind, k):
     if kind == "zones" and len(frame.strata) == k:
         areas = [s.area_m2 for s in frame.strata]
         assert max(areas) - min(areas) <= 1e-5 * expected_frame
+
+
+def test_reach_keeps_the_whole_connected_lake_and_none_of_a_separate_one():
+    lake_a = shapely.box(X0, Y0, X0 + 1000, Y0 + 1000)
+    lake_b = shapely.box(X0 + 1500, Y0, X0 + 2500, Y0 + 1000)
+    access = utm_gdf([shapely.Point(X0 + 10, Y0 + 500)])
+    frame = build_frame(utm_gdf([lake_a, lake_b]), access=access, reach_m=5000)
+    # every place in lake A is within 1.5 km by water; lake B cannot be reached at all
+    assert frame.area_m2 == pytest.approx(lake_a.area, rel=1e-9)
+    d = frame.router.distance_matrix(np.array([[X0 + 500, Y0 + 500], [X0 + 2000, Y0 + 500]]))
+    assert np.isinf(d[0, 1])
+    with pytest.raises(InfeasibleError, match="do not connect"):
+        frame.router.path((X0 + 500, Y0 + 500), (X0 + 2000, Y0 + 500))
