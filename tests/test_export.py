@@ -24,9 +24,8 @@ import pyogrio
 import pyproj
 import pytest
 
-from fixtures_design import CALENDAR, LAUNCH_XY, SITES, TZ, VISITS, build_design, lonlat, with_two_trips
+from fixtures_design import CALENDAR, LAUNCH_XY, SITES, TZ, VISITS, build_design, with_two_trips
 from geosample.export import PACKAGE_FILES, write_package
-from geosample.export.geo import write_geojson
 from geosample.export.gpx import write_gpx
 from geosample.export.map import render_map, write_map
 from geosample.export.report import claim_wording, render_report, report_context, write_report
@@ -258,8 +257,10 @@ def test_map_content(package):
     text = package["map.html"].read_text(encoding="utf-8")
     for sid in ALL_IDS:
         assert f"\\u003cb\\u003e{sid}\\u003c/b\\u003e" in text  # each site's popup title (JSON-escaped HTML)
-    assert text.count('"className": "gs-marker gs-site"') == len(PRIMARY_IDS)
-    assert text.count('"className": "gs-marker gs-reserve"') == len(RESERVE_IDS)
+    for sid in PRIMARY_IDS:  # tooltips, JSON-escaped ("\u00b7" is the middle dot)
+        assert text.count(f"{sid} \\u00b7 day ") == 1
+    for sid in RESERVE_IDS:
+        assert text.count(f"{sid} \\u00b7 reserve ") == 1
     assert text.count("gs-route") >= 2
     assert "L.control.scale()" in text
     assert "North basin" in text and "South basin" in text and "Closed: no sampling" in text
@@ -356,3 +357,14 @@ def test_rows_fail_clearly_on_naive_times():
     sched = dataclasses.replace(d.schedule, visits=(v,) + d.schedule.visits[1:])
     with pytest.raises(ValueError, match="time zone"):
         schedule_rows(dataclasses.replace(d, schedule=sched))
+
+
+def test_template_syntax_in_user_text_stays_text():
+    # folium passes the scripts it renders through jinja again; user text must never be read as a template.
+    d = build_design(("{{ 7*7 }}", "{% for x in y %}"), title="Survey {# not a comment #}")
+    text = render_map(d)
+    assert "<span>{{ 7*7 }} (3)</span>" in text  # legend, as written
+    assert "\\u0026#123;\\u0026#123; 7*7 \\u0026#125;\\u0026#125;" in text  # popups: braces as HTML entities
+    assert "Survey &#123;# not a comment #&#125;" in text
+    report = render_report(d)
+    assert "{{ 7*7 }}" in report and "{% for x in y %}" in report

@@ -42,9 +42,10 @@ import datetime as dt
 import functools
 import html
 import itertools
+import json
 import re
 from collections import OrderedDict
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -52,8 +53,7 @@ import folium
 import numpy as np
 import pyproj
 import shapely
-from branca.element import Element, MacroElement
-from folium.template import Template
+from branca.element import Element
 from shapely.geometry import mapping
 
 from ..model import Design, Route, Visit
@@ -121,7 +121,15 @@ def _ll(lat: float, lon: float) -> list[float]:
 
 
 def _esc(value: Any) -> str:
-    return html.escape(str(value), quote=True)
+    """HTML-escape user text; braces too, so no text can open a template tag when folium re-reads a script."""
+    return html.escape(str(value), quote=True).replace("{", "&#123;").replace("}", "&#125;")
+
+
+def _js(obj: Any) -> str:
+    """``obj`` as a JavaScript literal that is safe inside ``<script>`` (JSON, ``< > & '`` and non-ASCII escaped)."""
+    text = json.dumps(obj, ensure_ascii=True, separators=(",", ":"))
+    return (text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
+            .replace("'", "\\u0027"))
 
 
 def _popup(title: str, rows: Sequence[tuple[str, Any]]) -> str:
@@ -157,53 +165,84 @@ def day_style(k: int) -> tuple[str, str | None]:
     return ROUTE_COLOURS[k % n], ROUTE_DASHES[(k // n) % len(ROUTE_DASHES)]
 
 
-class _Bind(MacroElement):
-    """Bind a popup (HTML, already escaped) and a tooltip (text) to the parent layer.
+class _Raw(Element):
+    """Text written into the page as it is (branca would otherwise compile it as a jinja template)."""
 
-    Plain Leaflet calls; the strings enter the script as JSON with ``<``, ``>``,
-    ``&`` and ``'`` escaped, so no text can end the script or run code.
+    def __init__(self, text: str):
+        super().__init__()
+        self._name = "Raw"
+        self.text = text
+
+    def render(self, **kwargs: Any) -> str:
+        return self.text
+
+
+class _Script(Element):
+    """JavaScript added to the page's script after its parent's, built from the parent's JS name.
+
+    folium's own elements pass their rendered script through jinja a second time; this one
+    does not, so user text in it can never be read as a template.
     """
 
-    _template = Template(
-        """
-        {% macro script(this, kwargs) %}
-        {{ this._parent.get_name() }}{% if this.popup %}.bindPopup({{ this.popup|tojson }}, {"maxWidth": 360}){% endif %}
-        {%- if this.tooltip %}.bindTooltip({{ this.tooltip|tojson }}, {"direction": "top", "offset": [0, -10]}){% endif %};
-        {% endmacro %}
-        """
-    )
-
-    def __init__(self, popup: str | None = None, tooltip: str | None = None):
+    def __init__(self, build: Callable[[str], str]):
         super().__init__()
-        self._name = "Bind"
-        self.popup = popup
-        self.tooltip = html.escape(tooltip) if tooltip else None
+        self._name = "Script"
+        self._build = build
+
+    def render(self, **kwargs: Any) -> str:
+        self.get_root().script.add_child(_Raw(self._build(self._parent.get_name())), name=self.get_name())
+        return ""
 
 
-class _Legend(MacroElement):
-    """Move the legend (rendered, escaped, in the page body) into a Leaflet control."""
+def _bind(layer: Element, popup: str | None = None, tooltip: str | None = None) -> None:
+    """Bind a popup (HTML, already escaped) and a tooltip (HTML, already escaped) to ``layer``."""
 
-    _template = Template(
-        """
-        {% macro script(this, kwargs) %}
-        (function () {
-            var box = document.getElementById("gs-legend");
-            var control = L.control({position: "bottomright"});
-            control.onAdd = function () {
-                L.DomEvent.disableClickPropagation(box);
-                L.DomEvent.disableScrollPropagation(box);
-                box.style.display = "block";
-                return box;
-            };
-            control.addTo({{ this._parent.get_name() }});
-        })();
-        {% endmacro %}
-        """
-    )
+    def build(name: str) -> str:
+        out = name
+        if popup:
+            out += f".bindPopup({_js(popup)},{_js(_POPUP_OPTIONS)})"
+        if tooltip:
+            out += f".bindTooltip({_js(tooltip)},{_js(_TOOLTIP_OPTIONS)})"
+        return out + ";\n"
 
-    def __init__(self):
-        super().__init__()
-        self._name = "Legend"
+    layer.add_child(_Script(build))
+
+
+_POPUP_OPTIONS = {"maxWidth": 400}
+_TOOLTIP_OPTIONS = {"direction": "top", "offset": [0, -12]}
+
+# Markers of one layer: [lat, lon, label HTML, popup HTML, tooltip HTML] each, drawn as DivIcons
+# (no image, so nothing to fetch).
+_MARKERS_JS = """(function (group, sites, style) {
+  for (var i = 0; i < sites.length; i++) {
+    var s = sites[i];
+    var icon = L.divIcon({html: '<div class="' + style.inner + '" style="border-color:' + style.ring + '">' + s[2]
+      + '</div>', className: style.cls, iconSize: style.size, iconAnchor: style.anchor});
+    L.marker([s[0], s[1]], {icon: icon}).bindPopup(s[3], style.popup).bindTooltip(s[4], style.tooltip)
+      .addTo(group);
+  }
+})(%s, %s, %s);
+"""
+
+_LEGEND_JS = """(function (map) {
+  var box = document.getElementById("gs-legend");
+  var control = L.control({position: "bottomright"});
+  control.onAdd = function () {
+    L.DomEvent.disableClickPropagation(box);
+    L.DomEvent.disableScrollPropagation(box);
+    box.style.display = "block";
+    return box;
+  };
+  control.addTo(map);
+})(%s);
+"""
+
+
+def _markers(group: Element, sites: list[list[Any]], *, inner: str, cls: str, ring: str,
+             size: tuple[int, int]) -> None:
+    style = {"inner": inner, "cls": cls, "ring": ring, "size": list(size), "anchor": [size[0] // 2, size[1] // 2],
+             "popup": _POPUP_OPTIONS, "tooltip": _TOOLTIP_OPTIONS}
+    group.add_child(_Script(lambda name: _MARKERS_JS % (name, _js(sites), _js(style))))
 
 
 def _renumber(root: Element) -> None:
@@ -229,12 +268,6 @@ def _renumber(root: Element) -> None:
 
 
 # --------------------------------------------------------------------------- layers
-def _marker(lat: float, lon: float, icon_html: str, css_class: str, size: tuple[int, int]) -> folium.Marker:
-    icon = folium.DivIcon(html=icon_html, icon_size=size, icon_anchor=(size[0] // 2, size[1] // 2),
-                          class_name=css_class)
-    return folium.Marker(_ll(lat, lon), icon=icon)
-
-
 def _site_popup(v: Visit, day: int | None) -> str:
     rows: list[tuple[str, Any]] = [("Stratum", v.stratum)]
     if v.role == "primary":
@@ -305,14 +338,16 @@ def build_map(design: Design, *, tiles: str | None = None, attribution: str | No
     west, south, east, north = water_ll.bounds
     title = design.survey.get("title") or "Sampling design"
 
-    m = folium.Map(location=[(south + north) / 2, (west + east) / 2], zoom_start=13, tiles=None,
+    # A far-out start zoom makes Leaflet jump to the fitted view (no zoom animation, so the page is
+    # still at once; Leaflet animates only zoom changes up to zoomAnimationThreshold = 4).
+    m = folium.Map(location=[(south + north) / 2, (west + east) / 2], zoom_start=2, tiles=None,
                    control_scale=True, prefer_canvas=False)
     m.default_js = []  # Leaflet is inlined below; nothing needs jQuery, Bootstrap or Font Awesome
     m.default_css = []
     m.options["max_zoom"] = 20
-    m.get_root().title = html.escape(title)
+    m.get_root().title = _esc(title)
 
-    base = folium.FeatureGroup(name=html.escape("Water and strata"), control=True, show=True)
+    base = folium.FeatureGroup(name=_esc("Water and strata"), control=True, show=True)
     folium.GeoJson(_feature(water_ll), style_function=lambda _: {
         "color": WATER_EDGE, "weight": 1.5, "fillColor": "#FFFFFF", "fillOpacity": 1.0}, control=False,
         smooth_factor=0.5).add_to(base)
@@ -322,21 +357,20 @@ def build_map(design: Design, *, tiles: str | None = None, attribution: str | No
         gj = folium.GeoJson(_feature(_to_lonlat(s.geometry, tr)), style_function=lambda _, c=colour: {
             "color": "#333333", "weight": 0.8, "fillColor": c, "fillOpacity": 0.75}, control=False,
             smooth_factor=0.5)
-        _Bind(popup=_popup(s.name, [("Stratum code", s.code), ("Area", f"{s.area_m2 / 1e6:.3f} km²"),
-                                    ("Weight", f"{s.weight:.3f}"), ("Primary sites", alloc.get(s.name, 0))])
-              ).add_to(gj)
+        _bind(gj, popup=_popup(s.name, [("Stratum code", s.code), ("Area", f"{s.area_m2 / 1e6:.3f} km²"),
+                                        ("Weight", f"{s.weight:.3f}"), ("Primary sites", alloc.get(s.name, 0))]))
         gj.add_to(base)
     base.add_to(m)
 
     if frame.exclusions is not None and not shapely.is_empty(frame.exclusions):
-        closed = folium.FeatureGroup(name=html.escape("Closed areas"), show=True)
+        closed = folium.FeatureGroup(name=_esc("Closed areas"), show=True)
         clipped = shapely.intersection(frame.exclusions, water) if water is not None else frame.exclusions
         if shapely.is_empty(clipped):
             clipped = frame.exclusions
         gj = folium.GeoJson(_feature(_to_lonlat(clipped, tr)), style_function=lambda _: {
             "color": "#222222", "weight": 1.2, "dashArray": "4 3", "fillColor": CLOSED_COLOUR,
             "fillOpacity": 0.9}, control=False, class_name="gs-closed", smooth_factor=0.5)
-        _Bind(popup=_popup("Closed", [("", "Excluded from the frame: no site is drawn here.")])).add_to(gj)
+        _bind(gj, popup=_popup("Closed", [("", "Excluded from the frame: no site is drawn here.")]))
         gj.add_to(closed)
         closed.add_to(m)
 
@@ -348,71 +382,65 @@ def build_map(design: Design, *, tiles: str | None = None, attribution: str | No
     by_id = {v.site_id: v for v in visits}
     day_entries: list[dict] = []
     groups: dict[dt.date, folium.FeatureGroup] = {}
-    trips = _trip_names(design, days)
-    day_order = sorted(days)
-    for date in day_order:
-        k = days[date] - 1
-        colour, dash = day_style(k)
+    sites_of_day: dict[dt.date, list[list[Any]]] = {}
+    for date in sorted(days):
+        colour, dash = day_style(days[date] - 1)
         n_sites = sum(1 for v in visits if v.role == "primary" and v.visit_date == date)
-        label = f"Day {days[date]} · {date.isoformat()} ({n_sites} sites)"
-        groups[date] = folium.FeatureGroup(name=html.escape(label), show=True)
+        groups[date] = folium.FeatureGroup(name=_esc(f"Day {days[date]} · {date.isoformat()} ({n_sites} sites)"),
+                                           show=True)
         day_entries.append({"label": f"Day {days[date]} · {date.isoformat()}", "colour": colour,
                             "dash": dash or "none"})
-    for r, name, day in trips:
-        group = groups.get(r.date)
-        if group is None:  # a route with no scheduled visit: still show it
-            colour, dash = day_style(day - 1)
-            group = groups[r.date] = folium.FeatureGroup(name=html.escape(name), show=True)
+    for r, name, day in _trip_names(design, days):
+        if r.date not in groups:  # a route with no scheduled visit: still show it
+            groups[r.date] = folium.FeatureGroup(name=_esc(name), show=True)
         colour, dash = day_style(day - 1)
         first = min((by_id[s].planned_time for s in r.site_ids if s in by_id and by_id[s].planned_time), default=None)
         line = folium.PolyLine([_ll(lat, lon) for lon, lat in r.coords_lonlat], color=colour, weight=3.5,
                                opacity=0.9, dash_array=dash, class_name="gs-route")
-        _Bind(popup=_route_popup(name, r, first, lab_minutes, holding_h), tooltip=name).add_to(line)
-        line.add_to(group)
+        _bind(line, popup=_route_popup(name, r, first, lab_minutes, holding_h), tooltip=_esc(name))
+        line.add_to(groups[r.date])
     for v in visits:
         if v.role != "primary" or v.visit_date is None:
             continue
-        colour, _ = day_style(days[v.visit_date] - 1)
+        day = days[v.visit_date]
         number = "" if v.route_order is None else str(int(v.route_order))
-        icon = f'<div class="gs-pin" style="border-color:{colour}">{html.escape(number)}</div>'
-        mk = _marker(v.lat, v.lon, icon, "gs-marker gs-site", (26, 26))
-        _Bind(popup=_site_popup(v, days[v.visit_date]),
-              tooltip=f"{v.site_id} · day {days[v.visit_date]}, stop {number}").add_to(mk)
-        mk.add_to(groups[v.visit_date])
+        sites_of_day.setdefault(v.visit_date, []).append(
+            _ll(v.lat, v.lon) + [_esc(number), _site_popup(v, day), _esc(f"{v.site_id} · day {day}, stop {number}")])
     for date in sorted(groups):
+        if date in sites_of_day:
+            _markers(groups[date], sites_of_day[date], inner="gs-pin", cls="gs-marker gs-site",
+                     ring=day_style(days[date] - 1)[0], size=(26, 26))
         groups[date].add_to(m)
 
     reserves = [v for v in visits if v.role != "primary"]
     if reserves:
-        rgroup = folium.FeatureGroup(name=html.escape(f"Reserves ({len(reserves)}; use in rank order)"), show=False)
-        for v in reserves:
-            icon = f'<div class="gs-res">R{int(v.reserve_rank)}</div>'
-            mk = _marker(v.lat, v.lon, icon, "gs-marker gs-reserve", (30, 20))
-            _Bind(popup=_site_popup(v, None), tooltip=f"{v.site_id} · reserve {v.reserve_rank}").add_to(mk)
-            mk.add_to(rgroup)
+        rgroup = folium.FeatureGroup(name=_esc(f"Reserves ({len(reserves)}; use in rank order)"), show=False)
+        _markers(rgroup, [_ll(v.lat, v.lon) + [_esc(f"R{int(v.reserve_rank)}"), _site_popup(v, None),
+                                               _esc(f"{v.site_id} · reserve {v.reserve_rank}")] for v in reserves],
+                 inner="gs-res", cls="gs-marker gs-reserve", ring="#333333", size=(30, 20))
         rgroup.add_to(m)
 
     if frame.access:
-        agroup = folium.FeatureGroup(name=html.escape("Access points"), show=True)
+        agroup = folium.FeatureGroup(name=_esc("Access points"), show=True)
+        rows = []
         for a in frame.access:
-            mk = _marker(a.lat, a.lon, '<div class="gs-acc"></div>', "gs-marker gs-access", (18, 18))
-            rows = [("Lat, lon (WGS 84)", f"{a.lat:.6f}, {a.lon:.6f}"), ("x, y (m)", f"{a.x:.1f}, {a.y:.1f}")]
+            cells = [("Lat, lon (WGS 84)", f"{a.lat:.6f}, {a.lon:.6f}"), ("x, y (m)", f"{a.x:.1f}, {a.y:.1f}")]
             if a.snapped_m:
-                rows.append(("Moved to the water", f"{a.snapped_m:.0f} m"))
-            _Bind(popup=_popup(a.name, rows), tooltip=a.name).add_to(mk)
-            mk.add_to(agroup)
+                cells.append(("Moved to the water", f"{a.snapped_m:.0f} m"))
+            rows.append(_ll(a.lat, a.lon) + ["", _popup(a.name, cells), _esc(a.name)])
+        _markers(agroup, rows, inner="gs-acc", cls="gs-marker gs-access", ring="#FFFFFF", size=(18, 18))
         agroup.add_to(m)
 
     if tiles:
-        folium.TileLayer(tiles=tiles, attr=attribution or "", name=html.escape("Basemap (needs a network)"),
+        folium.TileLayer(tiles=tiles, attr=attribution or "", name=_esc("Basemap (needs a network)"),
                          overlay=True, control=True, show=False).add_to(m)
 
     env = template_environment()
-    css = env.get_template("map.css").render()
-    m.get_root().header.add_child(Element(f"<style>\n{css}</style>"), name="gs_style")
+    root = m.get_root()
+    root.header.add_child(_Raw(f"<style>\n{env.get_template('map.css').render()}</style>\n"), name="gs_style")
     legend = env.get_template("map_legend.html.j2").render(**_legend_context(design, day_entries))
-    m.get_root().html.add_child(Element(legend), name="gs_legend")
-    _Legend().add_to(m)
+    root.html.add_child(_Raw(legend), name="gs_legend")
+    m.add_child(_Script(lambda name: _LEGEND_JS % name), name="gs_legend_control")
     folium.LayerControl(collapsed=False, position="topright").add_to(m)
     # Keep the lake clear of the legend (bottom right) and the layer control (top right).
     m.fit_bounds([[south, west], [north, east]], padding_top_left=(20, 20), padding_bottom_right=(300, 20))
@@ -440,8 +468,8 @@ def render_map(design: Design, *, tiles: str | None = None, attribution: str | N
     root = m.get_root()
     # Leaflet first in the head, before folium's own style and the map script.
     header = root.header
-    assets = OrderedDict([("leaflet_css", Element(f"<style>\n{css}\n</style>")),
-                          ("leaflet_js", Element(f"<script>\n{js}\n</script>"))])
+    assets = OrderedDict([("leaflet_css", _Raw(f"<style>\n{css}\n</style>\n")),
+                          ("leaflet_js", _Raw(f"<script>\n{js}\n</script>\n"))])
     for key, el in assets.items():
         el._parent = header
     header._children = OrderedDict(list(header._children.items())[:1] + list(assets.items())
