@@ -195,21 +195,7 @@ def draw_sites(
             xy = drawer(region, n_total, rng, spacer=spacer)
         except _Exhausted as stop:
             raise _infeasible(stratum.name, method, n, n_reserve, spacing, stop) from None
-        lon, lat = to_lonlat(xy[:, 0], xy[:, 1])
-        for k in range(n_total):
-            sites.append(
-                Site(
-                    site_id=f"{stratum.code}-{k + 1:03d}",
-                    stratum=stratum.name,
-                    role="primary" if k < n else "reserve",
-                    reserve_rank=0 if k < n else k - n + 1,
-                    draw_order=k + 1,
-                    x=float(xy[k, 0]),
-                    y=float(xy[k, 1]),
-                    lat=float(lat[k]),
-                    lon=float(lon[k]),
-                )
-            )
+        sites.extend(_site_records(stratum.name, stratum.code, n, xy, *to_lonlat(xy[:, 0], xy[:, 1])))
         balance[stratum.name] = spatial_balance(xy[:n], region) if measure_balance else None
         if spacing is not None and spacing_between_strata:
             earlier = np.vstack([earlier, xy])
@@ -221,6 +207,16 @@ def draw_sites(
         balance=balance,
         warnings=tuple(warnings),
     )
+
+
+def _site_records(name: str, code: str, n: int, xy: np.ndarray, lon: np.ndarray, lat: np.ndarray) -> list[Site]:
+    """One Site per drawn point: the first ``n`` primary, the rest reserves ranked 1, 2, ... in draw order."""
+    return [
+        Site(site_id=f"{code}-{k:03d}", stratum=name, role="primary" if k <= n else "reserve",
+             reserve_rank=0 if k <= n else k - n, draw_order=k, x=x, y=y, lat=la, lon=lo)
+        for k, x, y, la, lo in zip(range(1, len(xy) + 1), xy[:, 0].tolist(), xy[:, 1].tolist(),
+                                   np.asarray(lat, dtype=float).tolist(), np.asarray(lon, dtype=float).tolist())
+    ]
 
 
 def radical_inverse(i: Any, base: int) -> np.ndarray:
