@@ -385,10 +385,10 @@ def spatial_balance(points_xy: Any, polygon: Any) -> float | None:
 
 # =========================================================================== validation
 def _method(method: Any) -> Callable[..., np.ndarray]:
-    drawers = {"simple": _draw_simple, "balanced": _draw_balanced, "grts": _draw_grts}
-    if method not in drawers:
+    """The ``_draw_<method>`` function registered for a method name."""
+    if not isinstance(method, str) or method not in METHODS:
         raise SettingError("draw.method", method, " | ".join(METHODS), fix='write method = "balanced" in [draw]')
-    return drawers[method]
+    return globals()[f"_draw_{method}"]
 
 
 def _check_reserve(reserve: Any) -> float:
