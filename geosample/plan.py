@@ -39,7 +39,7 @@ from .errors import InputFileError, PlanError, SettingError
 __all__ = ["SCHEMA", "Plan", "Key", "load_plan", "load_plan_text", "plan_from_settings", "sha256_file"]
 
 from .stats.sizing import ALLOCATION_METHODS as ALLOCATIONS, BOUNDS  # the choices are defined once, there
-DRAW_METHODS = ("simple", "balanced", "grts")
+from .randomizer.space import METHODS as DRAW_METHODS  # noqa: E402
 WEEKDAYS = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
 GENERATED_STRATA = ("shore-bands", "zones")
 
