@@ -226,7 +226,7 @@ _MARKERS_JS = """(function (group, sites, style) {
 
 _LEGEND_JS = """(function (map) {
   var box = document.getElementById("gs-legend");
-  var control = L.control({position: "bottomright"});
+  var control = L.control({position: "topright"});
   control.onAdd = function () {
     L.DomEvent.disableClickPropagation(box);
     L.DomEvent.disableScrollPropagation(box);
@@ -312,6 +312,13 @@ def _trip_names(design: Design, days: dict[dt.date, int]) -> list[tuple[Route, s
     return out
 
 
+def _line_swatch(colour: str, dash: str | None) -> str:
+    """A short line in the day's colour and dash pattern (SVG), for the layer list and the legend."""
+    pattern = f' stroke-dasharray="{dash}"' if dash else ""
+    return (f'<svg class="gs-line" width="28" height="10" aria-hidden="true"><line x1="1" y1="5" x2="27" y2="5" '
+            f'stroke="{colour}" stroke-width="3.5"{pattern}/></svg>')
+
+
 def _legend_context(design: Design, day_entries: list[dict]) -> dict:
     alloc = design.allocation.as_dict()
     strata = [{"name": s.name, "colour": STRATUM_COLOURS[i % len(STRATUM_COLOURS)], "n": alloc.get(s.name, 0)}
@@ -386,8 +393,8 @@ def build_map(design: Design, *, tiles: str | None = None, attribution: str | No
     for date in sorted(days):
         colour, dash = day_style(days[date] - 1)
         n_sites = sum(1 for v in visits if v.role == "primary" and v.visit_date == date)
-        groups[date] = folium.FeatureGroup(name=_esc(f"Day {days[date]} · {date.isoformat()} ({n_sites} sites)"),
-                                           show=True)
+        label = f"Day {days[date]} · {date.isoformat()} ({n_sites} site{'' if n_sites == 1 else 's'})"
+        groups[date] = folium.FeatureGroup(name=_line_swatch(colour, dash) + _esc(label), show=True)
         day_entries.append({"label": f"Day {days[date]} · {date.isoformat()}", "colour": colour,
                             "dash": dash or "none"})
     for r, name, day in _trip_names(design, days):
@@ -440,10 +447,11 @@ def build_map(design: Design, *, tiles: str | None = None, attribution: str | No
     root.header.add_child(_Raw(f"<style>\n{env.get_template('map.css').render()}</style>\n"), name="gs_style")
     legend = env.get_template("map_legend.html.j2").render(**_legend_context(design, day_entries))
     root.html.add_child(_Raw(legend), name="gs_legend")
-    m.add_child(_Script(lambda name: _LEGEND_JS % name), name="gs_legend_control")
     folium.LayerControl(collapsed=False, position="topright").add_to(m)
-    # Keep the lake clear of the legend (bottom right) and the layer control (top right).
-    m.fit_bounds([[south, west], [north, east]], padding_top_left=(20, 20), padding_bottom_right=(300, 20))
+    # The legend goes in the same corner, below the layer list (Leaflet stacks controls: no overlap).
+    m.add_child(_Script(lambda name: _LEGEND_JS % name), name="gs_legend_control")
+    # Keep the lake clear of the layer list and the legend (top right).
+    m.fit_bounds([[south, west], [north, east]], padding_top_left=(20, 20), padding_bottom_right=(320, 20))
     return m
 
 
