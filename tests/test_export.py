@@ -293,7 +293,7 @@ def test_report_sections_and_figures(package, design):
     assert design.sizing["formula"] in plain
     assert "chebyshev" in plain and "proportional" in plain
     assert "exclude: closed.geojson" in plain and "swimming area" in plain
-    assert "EPSG:32616" in plain and design.frame.crs_reason in plain
+    assert "EPSG:32616" in plain and "Why: UTM zone 16N contains the water body" in plain
     assert "20270601" in plain and "written in the plan file" in plain
     assert "Number of draws made for this plan: 1" in re.sub(r"<[^>]+>", "", plain)
     assert "Earlier draws exist" not in plain

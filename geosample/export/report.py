@@ -101,6 +101,15 @@ def _km2(m2: float) -> str:
     return f"{m2 / 1e6:,.3f}"
 
 
+def _sentence(text: str) -> str:
+    """Capitalised, ending with a full stop ("the frame lies..." -> "The frame lies....")."""
+    text = (text or "").strip()
+    if not text:
+        return ""
+    text = text[0].upper() + text[1:]
+    return text if text.endswith((".", "!", "?")) else text + "."
+
+
 def _hhmm(t: dt.datetime | None) -> str:
     return "" if t is None else t.strftime("%H:%M")
 
@@ -153,7 +162,7 @@ def claim_wording(design: Design) -> dict[str, list[str]]:
         (f"A statement about single samples: a {what} below the criterion says nothing about how often a "
          "single sample exceeds it (that needs a percentile or threshold value, and its own design)."),
         (f"A statement about days outside the season ({season}), hours outside the sampling window, or places "
-         "outside the frame (closed areas, water removed by the constraints below)."),
+         "outside the frame (closed areas and the water the constraints removed: section 2)."),
         ("A result after sites were moved, skipped or replaced other than by the reserve rule (the next "
          "reserve of the same stratum, in rank order), or after re-drawing until the sites or days were "
          "convenient: the guarantee holds only for the design as drawn."),
@@ -244,7 +253,7 @@ def _frame(design: Design) -> dict:
         "frame_share": _pct(f.area_m2 / f.water_area_m2) if f.water_area_m2 else "",
         "removed": [{"constraint": r.constraint, "area_km2": _km2(r.area_m2), "percent": f"{r.percent_of_water:.2f}%",
                      "detail": r.detail} for r in f.removed],
-        "crs_name": getattr(crs, "name", str(crs)), "crs_epsg": epsg, "crs_reason": f.crs_reason,
+        "crs_name": getattr(crs, "name", str(crs)), "crs_epsg": epsg, "crs_reason": _sentence(f.crs_reason),
         "n_access": len(f.access),
         "access": [{"name": a.name, "snapped_m": f"{a.snapped_m:.0f}"} for a in f.access],
     }
