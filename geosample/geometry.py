@@ -1172,6 +1172,9 @@ def build_frame(
     if reach_m is not None and access is None:
         raise SettingError("area.reach_m", reach_m, "reach_m together with an access point layer",
                            fix='add access = "launches.geojson", or remove reach_m')
+    if reach_m is not None and not (isinstance(reach_m, (int, float)) and not isinstance(reach_m, bool)
+                                    and math.isfinite(reach_m) and reach_m > 0):
+        raise SettingError("area.reach_m", reach_m, "a positive number of metres")
     if access is not None:
         layer_notes += _layer_notes(access)
         raw = _access_points(access, crs, water_geom, float(access_snap_m), notes)
@@ -1181,8 +1184,6 @@ def build_frame(
         _step(progress, "building the over-water router")
         router = WaterRouter(water_geom)
     if reach_m is not None:
-        if not (isinstance(reach_m, (int, float)) and reach_m > 0):
-            raise SettingError("area.reach_m", reach_m, "a positive number of metres")
         _step(progress, "measuring the over-water reach from the access points")
         zone, info = router.reach_zone([[p.x, p.y] for p in points], float(reach_m),
                                        resolution_m=reach_resolution_m)

@@ -468,3 +468,10 @@ def test_reach_keeps_the_whole_connected_lake_and_none_of_a_separate_one():
     assert np.isinf(d[0, 1])
     with pytest.raises(InfeasibleError, match="do not connect"):
         frame.router.path((X0 + 500, Y0 + 500), (X0 + 2000, Y0 + 500))
+
+
+@pytest.mark.parametrize("bad", [0, -100.0, float("nan")])
+def test_reach_must_be_a_positive_distance(square_lake, bad):
+    access = utm_gdf([shapely.Point(X0 + 10, Y0 + 10)])
+    with pytest.raises(SettingError, match="area.reach_m.*a positive number of metres"):
+        build_frame(square_lake, access=access, reach_m=bad)
