@@ -161,8 +161,8 @@ def _sizing_summary(plan: Plan, frame: Frame, allocation) -> dict:
         guarantee = (
             f"With {allocation.total} primary samples allocated as shown, the {size['bound']} bound guarantees that "
             f"the procedure gives an interval of half-width at most {tol:.3g} {units}{scale} that contains the true "
-            f"{'geometric ' if survey['statistic'] == 'geomean' else ''}mean with probability at least "
-            f"{1 - allocation.error_bound:.2%} (error probability at most {allocation.error_bound:.4f})."
+            f"{'geometric ' if survey['statistic'] == 'geomean' else ''}mean at least {conf * 100:g}% of the time "
+            f"(the bound puts the error probability at most {allocation.error_bound:.4f})."
         )
     else:
         guarantee = f"{allocation.total} primary samples; error probability at most {allocation.error_bound:.4f}."

@@ -193,3 +193,10 @@ def test_defaults_are_valid_toml_values():
             if spec.default is not None and not spec.required:
                 assert spec.check(spec.default), f"{section}.{key} default {spec.default!r}"
     tomllib.loads(MINIMAL)
+
+
+def test_docs_cli_reference_is_up_to_date():
+    from geosample.cli._reference import cli_markdown
+
+    doc = Path(__file__).resolve().parents[1] / "docs" / "cli.md"
+    assert doc.read_text() == cli_markdown(), "regenerate: python -m geosample.cli._reference > docs/cli.md"
