@@ -1,18 +1,18 @@
-"""What every command shares: logging options, error handling, output-folder checks, JSON."""
+"""What every command shares: logging options, error handling, JSON output.
+
+Output folders are checked and replaced atomically in :mod:`geosample.workflow`."""
 from __future__ import annotations
 
 import functools
 import json
 import logging
 import math
-import shutil
 import sys
-from pathlib import Path
 from typing import Any, Callable
 
 import click
 
-from ..errors import GeosampleError, OutputExistsError
+from ..errors import GeosampleError
 
 CONTEXT_SETTINGS = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
 
@@ -71,42 +71,6 @@ def fail(message: str, code: int = 2) -> None:
     """Print ``message`` as one paragraph on stderr and exit with ``code``."""
     click.echo(f"geosample: error: {message}", err=True)
     raise SystemExit(code)
-
-
-def prepare_output(path: Path, overwrite: bool) -> None:
-    """Refuse an existing output folder unless ``overwrite``.
-
-    Called before any work is done, so nothing is computed only to be refused.
-    The folder itself is replaced only at the end, by the caller (atomic rename).
-    """
-    path = Path(path)
-    if path.exists() and not overwrite:
-        raise OutputExistsError(
-            f"output folder {str(path)!r} exists already and would be overwritten. "
-            "Choose another folder with -o, or add --overwrite to replace it."
-        )
-    if path.exists() and not path.is_dir():
-        raise OutputExistsError(
-            f"output {str(path)!r} exists and is a file, not a folder. Choose another path with -o."
-        )
-
-
-def replace_folder(tmp: Path, final: Path) -> None:
-    """Move a finished temporary folder into place, replacing ``final`` if it exists."""
-    final = Path(final)
-    if final.exists():
-        backup = final.with_name(final.name + ".geosample-old")
-        if backup.exists():
-            shutil.rmtree(backup)
-        final.rename(backup)
-        try:
-            Path(tmp).rename(final)
-        except Exception:
-            backup.rename(final)
-            raise
-        shutil.rmtree(backup)
-    else:
-        Path(tmp).rename(final)
 
 
 def _clean(obj: Any) -> Any:
