@@ -92,7 +92,7 @@ def build_frame_from_plan(plan: Plan, layers: Layers, *, progress: Progress | No
     )
 
 
-def _per_stratum(size: dict, names: list[str], key: str) -> list[float] | float | None:
+def _per_stratum(size: dict, names: list[str], key: str) -> list[float | None] | None:
     """Per-stratum values from [size.strata.NAME], falling back to the plan-wide value."""
     tables = size.get("strata") or {}
     unknown = sorted(set(tables) - set(names))
@@ -104,13 +104,11 @@ def _per_stratum(size: dict, names: list[str], key: str) -> list[float] | float 
     values = [tables.get(n, {}).get(key, default) for n in names]
     if all(v is None for v in values):
         return None
-    if any(v is None for v in values):
-        if key == "cost":
-            return [1.0 if v is None else float(v) for v in values]
-        missing = [n for n, v in zip(names, values) if v is None]
-        raise SettingError(f"size.{key}", None, f"a {key} for every stratum (missing for {', '.join(missing)})",
-                           fix=f"set size.{key} for the whole plan or [size.strata.NAME] {key} for each")
-    return [float(v) for v in values]
+    if key == "cost":
+        return [1.0 if v is None else float(v) for v in values]
+    # sd or range missing for some strata: the sizing engine uses what is known per stratum
+    # (an sd, else range/2) and says what it needs when something is missing.
+    return [None if v is None else float(v) for v in values]
 
 
 def allocation_from_plan(plan: Plan, frame: Frame):

@@ -1,0 +1,85 @@
+"""The design pipeline's seeds and its pieces (geosample/design.py, geosample/rng.py)."""
+from __future__ import annotations
+
+import hashlib
+import json
+
+import numpy as np
+import pytest
+
+from geosample.cli import main
+from geosample.design import resolve_seed
+from geosample.rng import seed_from_text, stream
+from geosample.workflow import copy_demo
+
+
+def test_seed_text_is_the_sha256_of_the_announced_text():
+    text = "Quillmere 2027 draw, announced at the May board meeting"
+    expected = int(hashlib.sha256(text.encode("utf-8")).hexdigest(), 16)  # hashlib as the reference
+    assert seed_from_text(text) == expected
+    assert resolve_seed({"draw": {"seed": None, "seed_text": text}}) == (expected, "text")
+
+
+def test_plan_seed_wins_and_no_seed_draws_a_fresh_one():
+    assert resolve_seed({"draw": {"seed": 12, "seed_text": None}}) == (12, "plan")
+    a, src = resolve_seed({"draw": {"seed": None, "seed_text": None}})
+    b, _ = resolve_seed({"draw": {"seed": None, "seed_text": None}})
+    assert src == "os" and a != b and 0 <= a < 2**63  # fits a TOML integer
+
+
+def test_named_streams_are_independent_of_other_names():
+    a = stream(5, "space/North").random(4)
+    assert np.array_equal(a, stream(5, "space/North").random(4))
+    assert not np.array_equal(a, stream(5, "space/South").random(4))
+    assert not np.array_equal(a, stream(6, "space/North").random(4))
+
+
+@pytest.fixture
+def demo_plan(tmp_path):
+    return copy_demo(tmp_path / "in")
+
+
+def _edit(plan, old, new):
+    text = plan.read_text()
+    assert old in text
+    plan.write_text(text.replace(old, new))
+
+
+def test_without_a_seed_the_drawn_seed_is_recorded_and_verifies(demo_plan, tmp_path):
+    _edit(demo_plan, "seed = 20270601", "")
+    out = tmp_path / "design"
+    assert main(["plan", str(demo_plan), "-o", str(out), "-q"]) == 0
+    manifest = json.loads((out / "manifest.json").read_text())
+    assert manifest["seed_source"] == "os"
+    assert int(manifest["seed"]) == manifest["settings"]["draw"]["seed"]
+    assert main(["verify", str(out)]) == 0
+    record = (demo_plan.parent / "plan.toml.draws.csv").read_text()
+    assert manifest["seed"] in record
+
+
+def test_seed_text_design_records_its_source_and_verifies(demo_plan, tmp_path):
+    _edit(demo_plan, "seed = 20270601", 'seed_text = "announced before the draw"')
+    out = tmp_path / "design"
+    assert main(["plan", str(demo_plan), "-o", str(out), "-q"]) == 0
+    manifest = json.loads((out / "manifest.json").read_text())
+    assert manifest["seed_source"] == "text"
+    assert int(manifest["seed"]) == seed_from_text("announced before the draw")
+    assert main(["verify", str(out)]) == 0
+
+
+def test_changing_one_stratum_leaves_the_other_strata_sites(demo_plan, tmp_path):
+    # Spacing across strata couples strata drawn later to earlier ones, so compare without spacing.
+    _edit(demo_plan, "spacing_m = 100", "")
+    a, b = tmp_path / "a", tmp_path / "b"
+    assert main(["plan", str(demo_plan), "-o", str(a), "-q"]) == 0
+    _edit(demo_plan, "[size]", "[size.strata.'Alder Bay']\nsd = 5\n\n[size]")
+    assert main(["plan", str(demo_plan), "-o", str(b), "-q"]) == 0
+
+    def sites(folder):
+        rows = [line.split(",") for line in (folder / "schedule.csv").read_text().splitlines()[1:]]
+        return {r[0]: (r[10], r[11]) for r in rows}
+
+    sa, sb = sites(a), sites(b)
+    for sid in sa:
+        if not sid.startswith("AB-") and sid in sb:
+            assert sa[sid] == sb[sid], sid
