@@ -248,6 +248,12 @@ def make_design(
                       min_minutes=t["minutes_on_site"])
     day_tuple = getattr(days, "days", days)
     day_warnings = tuple(getattr(days, "warnings", ()))
+    if t.get("field_days"):
+        from .randomizer.time import choose_field_days
+        from .rng import stream
+
+        day_tuple = choose_field_days(day_tuple, t["field_days"], rng=stream(seed, "time/crew-days"),
+                                      n_visits=len(draw.primaries()), per_day=t["per_day"])
     schedule = schedule_visits(draw, day_tuple, per_day=t["per_day"], seed=seed,
                                minutes_on_site=t["minutes_on_site"])
     step("planning day routes")

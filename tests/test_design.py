@@ -83,3 +83,23 @@ def test_changing_one_stratum_leaves_the_other_strata_sites(demo_plan, tmp_path)
     for sid in sa:
         if not sid.startswith("AB-") and sid in sb:
             assert sa[sid] == sb[sid], sid
+
+
+def test_field_days_budget_puts_the_visits_on_that_many_random_days(demo_plan, tmp_path):
+    _edit(demo_plan, "per_day = 8", "per_day = 8\nfield_days = 12")
+    out = tmp_path / "design"
+    assert main(["plan", str(demo_plan), "-o", str(out), "-q"]) == 0
+    rows = [line.split(",") for line in (out / "schedule.csv").read_text().splitlines()[1:]]
+    dates = [r[4] for r in rows if r[2] == "primary"]
+    counts = {d: dates.count(d) for d in set(dates)}
+    assert len(counts) <= 12 and max(counts.values()) <= 8
+    # spread over the season (temporal strata are weeks): not all in one month
+    assert len({d[:7] for d in counts}) == 3
+    assert main(["verify", str(out)]) == 0
+
+
+def test_field_days_too_few_for_the_visits_is_refused_with_figures(demo_plan, tmp_path, capsys):
+    _edit(demo_plan, "per_day = 8", "per_day = 8\nfield_days = 3")
+    assert main(["plan", str(demo_plan), "-o", str(tmp_path / "d")]) == 2
+    err = capsys.readouterr().err
+    assert "field_days = 3" in err and "24 visits" in err

@@ -444,3 +444,26 @@ def test_time_of_day_summary_by_hand():
     assert out["A"] == {"n": 4.0, "earliest_h": 7.5, "median_h": (9.0 + 10.0) / 2, "latest_h": 13.25,
                         "share_before_10": 0.5}  # 10:00 itself is not before 10:00
     assert out["B"]["earliest_h"] == out["B"]["latest_h"] == 16.75
+
+
+def test_choose_field_days_spreads_a_crew_budget_over_the_weeks():
+    # 13 weeks of weekdays, 20 crew days: each ISO week gets 20 * D_h / D days by largest remainder
+    # (common practice: temporal strata of equal effort), all distinct, none outside the calendar.
+    import datetime as _dt
+
+    import numpy as _np
+
+    from geosample.randomizer.time import choose_field_days, field_days as _field_days
+
+    cal = _field_days(_dt.date(2027, 6, 1), _dt.date(2027, 8, 31), weekdays=["mon", "tue", "wed", "thu", "fri"],
+                      skip=[], window=["07:00", "15:00"], timezone="America/Chicago")
+    picked = choose_field_days(cal.days, 20, rng=_np.random.default_rng(3))
+    assert len(picked) == len({d.date for d in picked}) == 20
+    weeks = {}
+    for d in cal.days:
+        weeks.setdefault(d.temporal_stratum, 0)
+        weeks[d.temporal_stratum] += 1
+    got = {w: sum(1 for d in picked if d.temporal_stratum == w) for w in weeks}
+    total = sum(weeks.values())
+    for w, n_days in weeks.items():
+        assert abs(got[w] - 20 * n_days / total) < 1

@@ -47,6 +47,7 @@ __all__ = [
     "Window",
     "FieldCalendar",
     "parse_window",
+    "choose_field_days",
     "field_days",
     "assign_days",
     "draw_times",
@@ -632,6 +633,37 @@ def draw_times(
 def _visit(site: Any, **kw: Any) -> Visit:
     return Visit(site_id=site.site_id, stratum=site.stratum, role=site.role, reserve_rank=site.reserve_rank,
                  x=site.x, y=site.y, lat=site.lat, lon=site.lon, **kw)
+
+
+def choose_field_days(days: Sequence[FieldDay], count: int, *, rng: np.random.Generator,
+                      n_visits: int | None = None, per_day: int | None = None) -> tuple[FieldDay, ...]:
+    """A random subset of ``count`` crew days, spread over the temporal strata.
+
+    For a crew that can go out on only ``count`` days of the season
+    (``time.field_days``): each temporal stratum gets a share of the days in
+    proportion to its allowed days (largest remainder), and the days inside a
+    stratum are drawn at random without replacement. This is :func:`assign_days`
+    with one slot a day.
+
+    Raises
+    ------
+    SettingError
+        ``count`` is larger than the allowed days.
+    InfeasibleError
+        ``count * per_day`` is smaller than ``n_visits``.
+    """
+    days = tuple(days)
+    if count > len(days):
+        raise SettingError("time.field_days", count, f"at most the {len(days)} allowed days of the season",
+                           fix="lower time.field_days, or allow more weekdays or a longer season")
+    if n_visits is not None and per_day is not None and count * per_day < n_visits:
+        raise InfeasibleError(
+            f"{n_visits} visits do not fit in time.field_days = {count} days of at most time.per_day = {per_day} "
+            f"visits ({count * per_day} visits). Raise field_days to at least {-(-n_visits // per_day)}, "
+            "raise per_day, or plan fewer samples."
+        )
+    picked = assign_days(count, days, per_day=1, rng=rng)
+    return tuple(days[i] for i in sorted(set(int(i) for i in picked)))
 
 
 def schedule_visits(
