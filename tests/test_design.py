@@ -86,7 +86,7 @@ def test_changing_one_stratum_leaves_the_other_strata_sites(demo_plan, tmp_path)
 
 
 def test_field_days_budget_puts_the_visits_on_that_many_random_days(demo_plan, tmp_path):
-    _edit(demo_plan, "per_day = 8", "per_day = 8\nfield_days = 12")
+    _edit(demo_plan, "field_days = 16", "field_days = 12")
     out = tmp_path / "design"
     assert main(["plan", str(demo_plan), "-o", str(out), "-q"]) == 0
     rows = [line.split(",") for line in (out / "schedule.csv").read_text().splitlines()[1:]]
@@ -99,7 +99,7 @@ def test_field_days_budget_puts_the_visits_on_that_many_random_days(demo_plan, t
 
 
 def test_field_days_too_few_for_the_visits_is_refused_with_figures(demo_plan, tmp_path, capsys):
-    _edit(demo_plan, "per_day = 8", "per_day = 8\nfield_days = 3")
+    _edit(demo_plan, "field_days = 16", "field_days = 3")
     assert main(["plan", str(demo_plan), "-o", str(tmp_path / "d")]) == 2
     err = capsys.readouterr().err
     assert "field_days = 3" in err and "24 visits" in err
