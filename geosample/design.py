@@ -259,10 +259,10 @@ def make_design(
     step("planning day routes")
     schedule = build_itinerary(schedule, frame, speed_kmh=t["speed_kmh"], minutes_on_site=t["minutes_on_site"],
                                holding_h=t["holding_h"], lab_minutes=t["lab_minutes"], seed=seed)
-    if day_warnings:
-        from dataclasses import replace
+    from dataclasses import replace
 
-        schedule = replace(schedule, warnings=tuple(schedule.warnings) + day_warnings)
+    schedule = replace(schedule, warnings=tuple(schedule.warnings) + day_warnings,
+                       calendar_days=len(getattr(days, "days", days)))
     sizing = _sizing_summary(plan, frame, allocation)
     return Design(
         settings=settings,

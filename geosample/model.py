@@ -289,6 +289,7 @@ class Schedule:
     travel_minutes_per_site: dict[str, float] = field(default_factory=dict)
     time_of_day: dict[str, dict[str, float]] = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
+    calendar_days: int = 0  # allowed days in the season, before a crew-day budget (0: len(days))
 
 
 # --------------------------------------------------------------------------- design
