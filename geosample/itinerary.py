@@ -204,6 +204,12 @@ class _Trip:
     samples_depot: bool = False  # the depot is a site sampled at the start
 
 
+def _leg_minutes(metres: float, m_per_min: float) -> float:
+    """Travel minutes for one leg, rounded up to a whole minute: a crew plans and reads whole minutes,
+    and rounding up keeps every planned time reachable."""
+    return float(math.ceil(metres / m_per_min - 1e-9)) if metres > 0 else 0.0
+
+
 def _time_trip(
     dist: np.ndarray, nodes: Sequence[int], leave: float, m_per_min: float, on_site: float,
     lab_minutes: float, *, samples_depot: bool = False,
@@ -218,13 +224,13 @@ def _time_trip(
     length = 0.0
     visited = ((0,) if samples_depot else ()) + tuple(nodes)
     for n in visited:
-        t += dist[pos, n] / m_per_min
+        t += _leg_minutes(dist[pos, n], m_per_min)
         length += dist[pos, n]
         arrive.append(t)
         t += on_site
         pos = n
     length += dist[pos, 0]
-    back = t + dist[pos, 0] / m_per_min
+    back = t + _leg_minutes(dist[pos, 0], m_per_min)
     holding = back - arrive[0] + lab_minutes if arrive else 0.0
     return _Trip(visited, leave, tuple(arrive), back, float(length), holding, samples_depot)
 
@@ -372,7 +378,16 @@ def _plan_day(
             f"{total:.0f} min ({len(trips)} trip(s)), over max_day_minutes = {max_day_minutes:g}. "
             "Lower time.per_day, or allow a longer crew day."
         )
-    start = day.window_start + dt.timedelta(minutes=u_start * (window - span))
+    # Leave at a whole minute drawn uniformly among those that fit the window (times on site are
+    # whole minutes in practice; with fractional ones the times keep their fraction).
+    first = day.window_start.replace(second=0, microsecond=0)
+    if first < day.window_start:
+        first += dt.timedelta(minutes=1)
+    slack = (day.window_end - first).total_seconds() / 60.0 - span
+    if slack < 0:  # the window fits the route only from its exact start
+        start = day.window_start + dt.timedelta(minutes=u_start * (window - span))
+    else:
+        start = first + dt.timedelta(minutes=math.floor(u_start * (math.floor(slack + 1e-9) + 1)))
     return _DayPlan(day_index, acc, xy, ids, dist, tuple(trips), start, ncand)
 
 
