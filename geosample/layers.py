@@ -158,6 +158,30 @@ def _check_kind(gdf: Any, path: Path, what: str, kind: str) -> None:
         )
 
 
+def _check_lonlat_range(gdf: Any, path: Path, what: str) -> None:
+    """Refuse coordinates outside -180..180, -90..90 in a layer whose CRS is geographic (lon/lat degrees)."""
+    import numpy as np
+
+    if not gdf.crs.is_geographic:
+        return
+    x0, y0, x1, y1 = (float(v) for v in gdf.total_bounds)
+    if not all(np.isfinite([x0, y0, x1, y1])):
+        return
+    if -180 <= x0 and x1 <= 180 and -90 <= y0 and y1 <= 90:
+        return
+    key = _plan_key(what)
+    where = (f"{key}: {str(path)!r} says its CRS is {gdf.crs.name} (degrees of longitude and latitude), but its "
+             f"coordinates run from x = {x0:.6g} to {x1:.6g} and y = {y0:.6g} to {y1:.6g}, outside longitude "
+             "-180 to 180 and latitude -90 to 90.")
+    if -90 <= x0 and x1 <= 90 and -180 <= y0 and y1 <= 180:
+        raise LayerError(f"{where} Longitude and latitude look swapped? The latitude exceeds 90 where the "
+                         "longitude would fit: re-export the layer with x = longitude and y = latitude (GeoJSON "
+                         "coordinates are [lon, lat]).")
+    raise LayerError(f"{where} The CRS is wrong: these look like metres of a projected CRS (e.g. Web Mercator "
+                     "EPSG:3857 or a UTM zone). Re-save the layer with its true CRS, or reproject it to "
+                     "lon/lat (EPSG:4326).")
+
+
 def _repair(gdf: Any, path: Path, what: str, notes: list[str]) -> Any:
     import shapely
 
@@ -211,7 +235,9 @@ def read_layer(path: str | Path, *, layer: str | None = None, what: str = "water
     InputFileError
         The file is missing or cannot be read.
     LayerError
-        No CRS (and none given), wrong geometry kind, no features, unknown layer name.
+        No CRS (and none given), coordinates outside -180..180 / -90..90 in a lon/lat CRS (a wrong
+        CRS, or longitude and latitude swapped), wrong geometry kind, no features, no polygon with an
+        area, unknown layer name.
     SettingError
         ``crs`` is not a CRS pyproj knows.
 
@@ -246,6 +272,7 @@ def read_layer(path: str | Path, *, layer: str | None = None, what: str = "water
                         "they were left out.")
         gdf = gdf[~missing].reset_index(drop=True)
     gdf = _assign_crs(gdf, path, what, crs, warnings)
+    _check_lonlat_range(gdf, path, what)
     _check_kind(gdf, path, what, kind)
     if shapely.has_z(gdf.geometry.values).any():
         gdf = gdf.copy()

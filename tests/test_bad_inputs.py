@@ -1,0 +1,180 @@
+"""The bad-input corpus (tests/data/bad/) and user text that must not run as code.
+
+Each corpus case is a folder with ``expect.txt`` (fragments the message must
+contain, one per line) and, for a case that is repaired rather than refused,
+``exit.txt`` (the expected exit code, 0). Plan cases are run with
+``geosample plan``; results cases (``results-*``) with ``geosample assess`` on
+the packaged demo design, the broken results file made from its schedule.csv by
+``make_bad.RESULTS_CASES``. A refused case must exit 2 with the fragments in the
+message, print no traceback and leave no output folder (nor a hidden
+``.OUT.*.partial`` beside it); ``assess`` must leave the design's files as they were.
+
+Escaping: HTML special characters in user text are escaped (HTML5 spec,
+"escapable raw text"/character references: common practice); a CSV text cell
+starting with ``=`` gets a leading apostrophe (OWASP, "CSV Injection": common
+practice).
+"""
+from __future__ import annotations
+
+import csv
+import hashlib
+import importlib.util
+import io
+import shutil
+from pathlib import Path
+
+import pytest
+
+from geosample.cli import main
+from geosample.workflow import copy_demo
+
+BAD = Path(__file__).resolve().parent / "data" / "bad"
+_spec = importlib.util.spec_from_file_location("make_bad", BAD / "make_bad.py")
+make_bad = importlib.util.module_from_spec(_spec)
+_spec.loader.exec_module(make_bad)
+
+PLAN_CASES = sorted(p.name for p in BAD.iterdir() if (p / "plan.toml").exists())
+RESULT_CASES = sorted(make_bad.RESULTS_CASES)
+
+
+def _expect(case: str) -> tuple[list[str], int]:
+    folder = BAD / case
+    lines = [ln for ln in (folder / "expect.txt").read_text(encoding="utf-8").splitlines() if ln.strip()]
+    code = int((folder / "exit.txt").read_text().strip()) if (folder / "exit.txt").exists() else 2
+    return lines, code
+
+
+def _run(argv: list[str], capsys) -> tuple[int, str]:
+    code = main(argv)
+    captured = capsys.readouterr()
+    return code, captured.out + captured.err
+
+
+def _leftovers(parent: Path, name: str) -> list[str]:
+    return sorted(p.name for p in parent.iterdir() if p.name == name or p.name.startswith(f".{name}."))
+
+
+def _tree_hashes(folder: Path) -> dict[str, str]:
+    return {str(p.relative_to(folder)): hashlib.sha256(p.read_bytes()).hexdigest()
+            for p in sorted(folder.rglob("*")) if p.is_file()}
+
+
+def test_corpus_is_complete():
+    # every case folder has its expectation, and the generator knows every results case
+    cases = [p.name for p in BAD.iterdir() if p.is_dir() and not p.name.startswith("__")]
+    assert set(cases) == set(PLAN_CASES) | set(RESULT_CASES)
+    assert len(PLAN_CASES) >= 9
+    for case in cases:
+        assert _expect(case)[0], case
+
+
+@pytest.mark.parametrize("case", PLAN_CASES)
+def test_plan_case(case, tmp_path, capsys):
+    work = tmp_path / "in"
+    shutil.copytree(BAD / case, work)  # the draw record is written beside the plan: keep the corpus clean
+    out_parent = tmp_path / "outs"
+    out_parent.mkdir()
+    out = out_parent / "OUT"
+    fragments, want = _expect(case)
+    code, text = _run(["plan", str(work / "plan.toml"), "-o", str(out)], capsys)
+    assert code == want, text
+    assert "Traceback" not in text
+    for frag in fragments:
+        assert frag in text, f"{case}: {frag!r} not in:\n{text}"
+    if want == 2:
+        assert text.count("geosample: error:") == 1
+        assert _leftovers(out_parent, "OUT") == []
+    else:
+        assert _leftovers(out_parent, "OUT") == ["OUT"]
+        assert (out / "manifest.json").exists()
+
+
+def test_bowtie_repair_keeps_both_lobes(tmp_path):
+    # the bow-tie's two triangles each have half the rectangle's area (geometry: common practice)
+    from geosample.layers import read_layer
+    import shapely
+
+    gdf = read_layer(BAD / "bowtie" / "water.geojson")
+    geom = gdf.geometry.iloc[0]
+    assert geom.geom_type == "MultiPolygon" and len(geom.geoms) == 2
+    box = shapely.box(*geom.bounds)
+    assert geom.area == pytest.approx(box.area / 2, rel=1e-9)
+
+
+# --------------------------------------------------------------------------- results cases
+@pytest.fixture(scope="module")
+def demo_design(tmp_path_factory):
+    base = tmp_path_factory.mktemp("demo")
+    plan = copy_demo(base / "inputs")
+    out = base / "design"
+    assert main(["plan", str(plan), "-o", str(out), "-q"]) == 0
+    return out
+
+
+@pytest.mark.parametrize("case", RESULT_CASES)
+def test_results_case(case, demo_design, tmp_path, capsys):
+    fragments, want = _expect(case)
+    schedule = (demo_design / "schedule.csv").read_text(encoding="utf-8")
+    results = tmp_path / "results.csv"
+    results.write_bytes(make_bad.RESULTS_CASES[case](schedule))
+    html = demo_design / "assessment.html"
+    if html.exists():
+        html.unlink()  # assess writes (replaces) only this file
+    before = _tree_hashes(demo_design)
+    code, text = _run(["assess", str(demo_design), str(results)], capsys)
+    assert code == want, text
+    assert "Traceback" not in text
+    for frag in fragments:
+        assert frag in text, f"{case}: {frag!r} not in:\n{text}"
+    after = _tree_hashes(demo_design)
+    if want == 2:
+        assert after == before
+    else:
+        assert after.pop("assessment.html")
+        assert after == before
+
+
+def _primary_results(schedule: str) -> list[float]:
+    rows = list(csv.DictReader(io.StringIO(schedule)))
+    return [r for r in rows if r["role"] == "primary"]
+
+
+def test_semicolon_decimal_comma_values(demo_design, tmp_path):
+    # documented in geosample.results: with semicolons "10,5" is read as 10.5
+    from geosample.results import read_results
+
+    schedule = (demo_design / "schedule.csv").read_text(encoding="utf-8")
+    path = tmp_path / "r.csv"
+    path.write_bytes(make_bad.results_semicolon(schedule))
+    res = read_results(path, demo_design)
+    assert res.delimiter == ";"
+    k = len(_primary_results(schedule))
+    want = sorted(10 * (i % 9 + 1) + 0.5 for i in range(k))  # what make_bad wrote, independent of the reader
+    got = sorted(r.value for r in res.records if r.used)
+    assert got == pytest.approx(want)
+
+
+def test_cp1252_names_survive(demo_design, tmp_path):
+    from geosample.results import read_results
+
+    schedule = (demo_design / "schedule.csv").read_text(encoding="utf-8")
+    path = tmp_path / "r.csv"
+    path.write_bytes(make_bad.results_cp1252(schedule))
+    res = read_results(path, demo_design)
+    assert res.encoding == "cp1252"
+    notes = {v for r in res.records for k, v in r.extra if k == "notes" and v}
+    assert notes == {"Crew: Zoë Ñandú, café shore"}
+
+
+def test_spreadsheet_dates_flag_every_row(demo_design, tmp_path):
+    from geosample.results import read_results
+
+    schedule = (demo_design / "schedule.csv").read_text(encoding="utf-8")
+    path = tmp_path / "r.csv"
+    path.write_bytes(make_bad.results_spreadsheet_dates(schedule))
+    res = read_results(path, demo_design)
+    flag = [f for f in res.flags if f.kind == "sampled_at_unreadable"]
+    assert len(flag) == 1
+    k = len(_primary_results(schedule))
+    assert len(flag[0].rows) == k  # every mangled row is named
+    assert all(r.sampled_at is None for r in res.records)
