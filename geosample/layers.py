@@ -204,6 +204,25 @@ def _repair(gdf: Any, path: Path, what: str, notes: list[str]) -> Any:
     return gdf
 
 
+def _drop_arealess(gdf: Any, path: Path, what: str, notes: list[str]) -> Any:
+    """Leave out polygons with no area (corners on one line, or collapsed by the repair); refuse if none is left."""
+    import shapely
+
+    flat = shapely.is_empty(gdf.geometry.values) | (shapely.area(gdf.geometry.values) <= 0)
+    if not flat.any():
+        return gdf
+    key = _plan_key(what)
+    name_col = name_column(gdf.columns)
+    labels = ", ".join(_feature_label(gdf, int(i), name_col) for i in flat.nonzero()[0][:5])
+    if flat.all():
+        raise LayerError(f"{key}: {str(path)!r} has no polygon with an area ({labels}: zero area, e.g. every "
+                         "corner on one line). Redraw the water body as a polygon that encloses the water.")
+    note = f"{key}: {path.name} {labels} has no area (zero-area polygon); left out."
+    notes.append(note)
+    log.warning(note)
+    return gdf[~flat].reset_index(drop=True)
+
+
 def read_layer(path: str | Path, *, layer: str | None = None, what: str = "water", kind: str = "polygon",
                crs: Any = None) -> Any:
     """Read one vector layer and check it is usable.
@@ -279,6 +298,7 @@ def read_layer(path: str | Path, *, layer: str | None = None, what: str = "water
         gdf[gdf.geometry.name] = shapely.force_2d(gdf.geometry.values)
     if kind == "polygon":
         gdf = _repair(gdf, path, what, warnings)
+        gdf = _drop_arealess(gdf, path, what, warnings)
     gdf = gdf.reset_index(drop=True)
     gdf.attrs[WARNINGS_KEY] = warnings
     gdf.attrs["geosample_source"] = path.name

@@ -63,7 +63,7 @@ def test_corpus_is_complete():
     # every case folder has its expectation, and the generator knows every results case
     cases = [p.name for p in BAD.iterdir() if p.is_dir() and not p.name.startswith("__")]
     assert set(cases) == set(PLAN_CASES) | set(RESULT_CASES)
-    assert len(PLAN_CASES) >= 9
+    assert len(PLAN_CASES) >= 10
     for case in cases:
         assert _expect(case)[0], case
 

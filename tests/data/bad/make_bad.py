@@ -98,6 +98,9 @@ def empty_gpkg(path: Path) -> None:
     import geopandas
     import shapely
 
+    import os
+
+    os.environ["OGR_CURRENT_DATE"] = "2027-01-01T00:00:00.000Z"  # GDAL stamps this date: same bytes every run
     gdf = geopandas.GeoDataFrame({"name": ["x"]}, geometry=[shapely.box(0, 0, 1, 1)], crs=4326).iloc[:0]
     gdf.to_file(path, layer="tarn", driver="GPKG", engine="pyogrio")
 
