@@ -178,3 +178,83 @@ def test_spreadsheet_dates_flag_every_row(demo_design, tmp_path):
     k = len(_primary_results(schedule))
     assert len(flag[0].rows) == k  # every mangled row is named
     assert all(r.sampled_at is None for r in res.records)
+
+
+def test_one_zero_area_feature_is_left_out_with_a_warning(tmp_path):
+    from geosample.layers import read_layer
+
+    flat = [(0.0, 0.02), (0.01, 0.02), (0.03, 0.02), (0.0, 0.02)]
+    path = tmp_path / "water.geojson"
+    path.write_text(make_bad.geojson([({"name": "Pellow Tarn"}, make_bad.ring(make_bad.TARN)),
+                                      ({"name": "Flat Slough"}, make_bad.ring(flat))]), encoding="utf-8")
+    gdf = read_layer(path)
+    assert list(gdf["name"]) == ["Pellow Tarn"]
+    assert any("Flat Slough" in w and "no area" in w for w in gdf.attrs["geosample_warnings"])
+
+
+# --------------------------------------------------------------------------- untrusted text
+SCRIPT = "<script>window.__pwn=1</script>"
+FORMULA = '=HYPERLINK("http://x")'
+IMG = '<img src=x onerror="window.__pwn=2">'  # runs even when inserted with innerHTML (popups), unlike <script>
+
+
+@pytest.fixture(scope="module")
+def untrusted_design(tmp_path_factory):
+    """A plan whose title and stratum names are markup and a spreadsheet formula, run through ``plan``."""
+    base = tmp_path_factory.mktemp("untrusted")
+    west = [(-0.01, -0.01), (0.015, -0.01), (0.015, 0.02), (-0.01, 0.02), (-0.01, -0.01)]  # reach onto land
+    east = [(0.015, -0.01), (0.04, -0.01), (0.04, 0.02), (0.015, 0.02), (0.015, -0.01)]
+    (base / "water.geojson").write_text(make_bad.tarn_layer(), encoding="utf-8")
+    (base / "zones.geojson").write_text(make_bad.geojson([({"zone": SCRIPT}, make_bad.ring(west)),
+                                                          ({"zone": FORMULA}, make_bad.ring(east))]),
+                                        encoding="utf-8")
+    title = f"'Pellow Tarn {SCRIPT} {IMG} {FORMULA}'"  # a TOML literal string
+    plan = make_bad.plan_text("untrusted", title=title,
+                              area_extra='strata = "zones.geojson"\nstrata_field = "zone"\n')
+    (base / "plan.toml").write_text(plan, encoding="utf-8")
+    out = base / "OUT"
+    assert main(["plan", str(base / "plan.toml"), "-o", str(out), "-q"]) == 0
+    return out
+
+
+@pytest.mark.parametrize("name", ["report.html", "map.html"])
+def test_user_text_is_escaped_in_html(untrusted_design, name):
+    text = (untrusted_design / name).read_text(encoding="utf-8")
+    assert "<script>window.__pwn" not in text
+    assert "<img src=x" not in text
+    assert "window.__pwn" in text  # the name is shown, escaped, not dropped
+    if name == "report.html":
+        assert "&lt;script&gt;window.__pwn=1&lt;/script&gt;" in text
+
+
+def test_formula_stratum_is_neutralised_in_csv(untrusted_design):
+    rows = list(csv.reader(io.StringIO((untrusted_design / "schedule.csv").read_text(encoding="utf-8"))))
+    strata = {r[1] for r in rows[1:]}
+    assert strata == {SCRIPT, "'" + FORMULA}
+
+
+@pytest.mark.browser
+@pytest.mark.parametrize("name", ["report.html", "map.html"])
+def test_browser_runs_no_user_script(untrusted_design, name):
+    from test_map_browser import ARGS, CHROMIUM
+
+    if not CHROMIUM.exists():
+        pytest.skip(f"{CHROMIUM} is missing (the CI script installs the Debian chromium package)")
+    try:
+        from playwright.sync_api import sync_playwright
+    except ImportError as exc:  # pragma: no cover - depends on the machine
+        pytest.skip(f"playwright cannot be imported: {exc}")
+    with sync_playwright() as p:
+        browser = p.chromium.launch(executable_path=str(CHROMIUM), args=ARGS)
+        try:
+            page = browser.new_page()
+            page.goto((untrusted_design / name).as_uri())
+            page.wait_for_load_state("load")
+            if name == "map.html":
+                page.wait_for_selector(".gs-site")
+                page.locator(".gs-site").first.click()  # open a popup: its html holds the stratum name
+                page.locator(".leaflet-popup-content").wait_for()
+            assert page.evaluate("typeof window.__pwn") == "undefined"
+            assert "window.__pwn" in page.inner_text("body")
+        finally:
+            browser.close()
