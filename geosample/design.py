@@ -88,6 +88,7 @@ def build_frame_from_plan(plan: Plan, layers: Layers, *, progress: Progress | No
         zones=area.get("zones"),
         remainder=area.get("remainder"),
         access_snap_m=area.get("access_snap_m", 200.0),
+        name_field=area.get("name_field"),
         progress=progress,
     )
 
@@ -111,12 +112,42 @@ def _per_stratum(size: dict, names: list[str], key: str) -> list[float | None] |
     return [None if v is None else float(v) for v in values]
 
 
+def _check_water_body_minimum(size: dict, k: int) -> None:
+    """With one stratum per water body, refuse a minimum per stratum that alone would set the total.
+
+    The bound is the frame-wide sample size for the plan's tolerance (one stratum);
+    with a fixed total ``n`` it is ``n``. ``k * min_per_stratum`` above it would
+    multiply the effort just to put samples in every lake.
+    """
+    from .errors import InfeasibleError
+    from .stats.sizing import sample_size
+
+    need = k * size["min_per_stratum"]
+    if size.get("n") is not None:
+        total, what = int(size["n"]), f"the fixed total size.n = {size['n']}"
+    elif size.get("tolerance") is not None and any(isinstance(size.get(key), (int, float)) and not
+                                                   isinstance(size.get(key), bool) for key in ("range", "sd")):
+        total = sample_size(size["tolerance"], range=size.get("range"), sd=size.get("sd"),
+                            confidence=size["confidence"], bound=size["bound"], sides=size["sides"]).n
+        what = f"the {total} samples the {size['bound']} bound needs for the whole frame as one stratum"
+    else:
+        return
+    if need > total:
+        raise InfeasibleError(
+            f'area.strata = "water-bodies" makes {k} strata, and size.min_per_stratum = {size["min_per_stratum"]} '
+            f"in each needs {need} primary samples, more than {what}. Remove strata = \"water-bodies\" (the draw "
+            "over the whole region already gives each water body a share in proportion to its area), group the "
+            f"water bodies with a strata layer, or set size.n to at least {need}.")
+
+
 def allocation_from_plan(plan: Plan, frame: Frame):
     """Size and allocate the primary samples over the frame's strata."""
     from .stats.sizing import allocate
 
     size = plan.settings["size"]
     names = [s.name for s in frame.strata]
+    if plan.settings["area"].get("strata") == "water-bodies":
+        _check_water_body_minimum(size, len(names))
     return allocate(
         [s.weight for s in frame.strata],
         strata=names,

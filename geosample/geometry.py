@@ -44,6 +44,7 @@ __all__ = [
     "shore_band",
     "shore_bands",
     "compact_zones",
+    "water_body_strata",
     "GRID_RELATIVE_ERROR",
 ]
 
@@ -56,6 +57,8 @@ GRID_RELATIVE_ERROR = 1.0 / math.cos(math.atan(0.5) / 2.0) - 1.0
 """Largest relative excess of a 16-neighbour grid path over the straight line (about 2.75 %)."""
 
 _ZONE_AREA_RTOL = 1e-6  # compact zones are cut to equal areas within this relative tolerance
+_MANY_PARTS = 64  # from this many polygons on, a disjoint layer is kept as a MultiPolygon without a union
+_ROUTE_ALL_BODIES_UP_TO = 20  # with more separate water bodies, the router covers those holding access points
 _SLIVER_RTOL = 1e-6  # uncovered or overlapping strata area below this share of the frame is rounding
 _UTM_MAX_OFFSET_DEG = 4.0  # UTM is kept while the frame stays within 4 deg of the zone's central meridian
 _UTM_MAX_WIDTH_DEG = 6.0
@@ -266,10 +269,36 @@ def _project(gdf: Any, crs: Any, what: str, kind: str, notes: list[str]) -> Any:
     return g
 
 
-def _union(gdf: Any) -> Any:
+def _disjoint_parts(geoms: Any) -> np.ndarray | None:
+    """The polygons of ``geoms`` as one flat array when no two of them intersect, else None.
+
+    An STRtree query finds every intersecting pair in about ``n log n``; polygons that
+    only touch count as intersecting (they are then merged by a union).
+    """
     import shapely
 
-    return _polygonal(shapely.make_valid(shapely.union_all(gdf.geometry.values)))
+    parts = shapely.get_parts(np.asarray(geoms, dtype=object))
+    parts = parts[~shapely.is_empty(parts)]
+    if len(parts) < _MANY_PARTS or not np.all(shapely.get_type_id(parts) == 3):  # 3: Polygon
+        return None
+    left, right = shapely.STRtree(parts).query(parts, predicate="intersects")
+    return parts if bool(np.all(left == right)) else None
+
+
+def _union(gdf: Any) -> Any:
+    """The union of a polygon layer's features.
+
+    Many pairwise disjoint polygons (a regional layer of lakes) are kept as one
+    MultiPolygon without a union: the same point set and area, at a fraction of the
+    cost (``docs/performance.md``).
+    """
+    import shapely
+
+    geoms = gdf.geometry.values
+    parts = _disjoint_parts(geoms)
+    if parts is not None:
+        return shapely.multipolygons(parts)
+    return _polygonal(shapely.make_valid(shapely.union_all(geoms)))
 
 
 def _area(geom: Any) -> float:
@@ -932,6 +961,78 @@ def _strata_from_layer(gdf: Any, field: str | None, frame: Any, notes: list[str]
     return out
 
 
+def _water_body_names(gdf: Any, field: str | None) -> list[str]:
+    """One name per feature of the water layer: from ``field``, else ``"Water body N"`` (N counts from 1)."""
+    if field is None:
+        return [f"Water body {i + 1}" for i in range(len(gdf))]
+    if field not in gdf.columns:
+        fields = [str(c) for c in gdf.columns if c != gdf.geometry.name]
+        raise LayerError(f"area.name_field: the water layer has no field {field!r}; the fields there are: "
+                         f"{', '.join(repr(c) for c in fields) or 'none'}. Set name_field to one of them, or remove "
+                         'it (the water bodies are then named "Water body 1", "Water body 2"...).')
+    out = []
+    for i, v in enumerate(gdf[field].tolist()):
+        text = "" if v is None else str(v).strip()
+        out.append(text if text and text.lower() != "nan" else f"Water body {i + 1}")
+    return out
+
+
+def water_body_strata(gdf: Any, frame: Any, *, name_field: str | None = None,
+                      whole_water: bool = False) -> list[tuple[str, Any]]:
+    """One stratum per water body of the (projected) water layer, clipped to the frame.
+
+    Features that share a name in ``name_field`` form one water body (the reaches
+    of one river, say); a feature without a name is its own, ``"Water body N"``
+    after its position in the layer.
+
+    Parameters
+    ----------
+    gdf : geopandas.GeoDataFrame
+        The water layer in the frame CRS, repaired (as :func:`build_frame` projects it).
+    frame : shapely geometry
+        The frame left after the constraints.
+    name_field : str, optional
+        Attribute naming each water body.
+    whole_water : bool
+        True when ``frame`` is the whole water (no constraint removed anything):
+        the features are then used as they are, without clipping.
+
+    Returns
+    -------
+    list of (name, geometry)
+        In order of first appearance in the layer; water bodies with no water left
+        in the frame have an empty geometry (dropped later with a note).
+
+    Examples
+    --------
+    >>> import geopandas, shapely
+    >>> g = geopandas.GeoDataFrame(geometry=[shapely.box(0, 0, 10, 10), shapely.box(20, 0, 30, 10)], crs=32616)
+    >>> [(n, round(p.area)) for n, p in water_body_strata(g, shapely.box(0, 0, 25, 10))]
+    [('Water body 1', 100), ('Water body 2', 50)]
+    """
+    import shapely
+
+    names = _water_body_names(gdf, name_field)
+    geoms = np.asarray(gdf.geometry.values, dtype=object)
+    groups: dict[str, list[int]] = {}
+    for i, n in enumerate(names):
+        groups.setdefault(n, []).append(i)
+    bodies = [(n, geoms[ix[0]] if len(ix) == 1 else shapely.union_all(geoms[ix])) for n, ix in groups.items()]
+    if whole_water:
+        return [(n, _polygonal(g)) for n, g in bodies]
+    frame_parts = shapely.get_parts(frame)
+    tree = shapely.STRtree(frame_parts)
+    out = []
+    for n, g in bodies:
+        near = tree.query(g, predicate="intersects")
+        if len(near) == 0:
+            out.append((n, shapely.Polygon()))
+            continue
+        local = frame_parts[near[0]] if len(near) == 1 else shapely.multipolygons(frame_parts[near])
+        out.append((n, _polygonal(shapely.intersection(g, local))))
+    return out
+
+
 def _check_overlaps(pieces: list[tuple[str, Any]], frame_area: float, notes: list[str]) -> list[tuple[str, Any]]:
     """Overlapping strata are an error; overlaps below rounding size go to the first stratum."""
     import shapely
@@ -956,12 +1057,12 @@ def _check_overlaps(pieces: list[tuple[str, Any]], frame_area: float, notes: lis
 
 
 def _finish_strata(pieces: list[tuple[str, Any]], codes: list[str] | None, frame: Any, remainder: str | None,
-                   water_area: float, notes: list[str]) -> tuple[Stratum, ...]:
+                   water_area: float, notes: list[str], *, covers: bool = False) -> tuple[Stratum, ...]:
     import shapely
 
     frame_area = _area(frame)
     pieces = _check_overlaps(pieces, frame_area, notes) if len(pieces) > 1 else pieces
-    if len(pieces) == 1 and pieces[0][1] is frame:
+    if covers or (len(pieces) == 1 and pieces[0][1] is frame):  # the pieces cover the frame by construction
         rest, rest_area = shapely.Polygon(), 0.0  # the whole frame is the one stratum
     else:
         covered = _polygonal(shapely.union_all([g for _, g in pieces])) if pieces else shapely.Polygon()
@@ -1032,6 +1133,23 @@ def _access_points(access: Any, crs: Any, water: Any, snap_m: float, notes: list
     return out
 
 
+def _routed_water(water: Any, points: Sequence[AccessPoint], snap_m: float) -> tuple[Any, int, int]:
+    """The water the router covers: all of it, or, when it holds many separate water bodies,
+    only those within ``snap_m`` of an access point (no over-water path leads to the others).
+
+    Returns the geometry, the number of water bodies and the number routed.
+    """
+    import shapely
+
+    parts = shapely.get_parts(water)
+    if len(parts) <= _ROUTE_ALL_BODIES_UP_TO:
+        return water, len(parts), len(parts)
+    xy = shapely.points([[p.x, p.y] for p in points])
+    _, hit = shapely.STRtree(parts).query(xy, predicate="dwithin", distance=max(snap_m, 0.0) + 1.0)
+    keep = np.unique(hit)
+    return shapely.multipolygons(parts[keep]) if len(keep) > 1 else parts[keep[0]], len(parts), len(keep)
+
+
 # =========================================================================== the frame
 def _single_name(gdf: Any) -> str:
     from .layers import name_column
@@ -1064,6 +1182,7 @@ def build_frame(
     remainder: str | None = None,
     access_snap_m: float = 200.0,
     reach_resolution_m: float | None = None,
+    name_field: str | None = None,
     progress: Progress | None = None,
 ) -> Frame:
     """Build the sampling frame from the plan's layers.
@@ -1081,9 +1200,10 @@ def build_frame(
         Keep water within this over-water travel distance of the nearest access point.
     shore_m : (min, max), optional
         Keep water whose distance to the shore (islands included) lies in ``[min, max]``.
-    strata : GeoDataFrame, "shore-bands", "zones" or None
+    strata : GeoDataFrame, "shore-bands", "zones", "water-bodies" or None
         The strata; None gives one stratum named after the water layer (its single
-        ``name`` value) or ``"Whole frame"``.
+        ``name`` value) or ``"Whole frame"``; ``"water-bodies"`` one stratum per
+        feature of the water layer (see :func:`water_body_strata`).
     strata_field : str, optional
         Attribute of the strata layer naming each stratum.
     bands_m : sequence of float, optional
@@ -1096,6 +1216,8 @@ def build_frame(
         Access points on land at most this far from the water move to the nearest shore.
     reach_resolution_m : float, optional
         Grid cell of the reach distance field (default chosen from the water area).
+    name_field : str, optional
+        Attribute of the water layer naming each water body (for ``strata="water-bodies"``).
     progress : callable, optional
         Called with a step name at the start of each step that can take seconds.
 
@@ -1182,7 +1304,19 @@ def build_frame(
         points = [AccessPoint(name=n, x=x, y=y, lat=float(la), lon=float(lo_), snapped_m=s)
                   for (n, x, y, s), lo_, la in zip(raw, lon, lat)]
         _step(progress, "building the over-water router")
-        router = WaterRouter(water_geom)
+        routed, n_bodies, n_routed = _routed_water(water_geom, points, float(access_snap_m))
+        if n_routed < n_bodies and reach_m is None:
+            raise SettingError(
+                "area.reach_m", None, "reach_m when access points are given for a water layer of "
+                f"more than {_ROUTE_ALL_BODIES_UP_TO} separate water bodies",
+                fix=f"the water layer holds {n_bodies} separate water bodies and only {n_routed} of them have an "
+                    "access point, so sites in the others could not be reached over water: add reach_m (keeps "
+                    "the water reachable from the access points), or remove access (routes then follow straight "
+                    "lines)")
+        if n_routed < n_bodies:
+            notes.append(f"the over-water router covers the {n_routed} of {n_bodies} separate water bodies that hold "
+                         "an access point; reach_m removes the others.")
+        router = WaterRouter(routed)
     if reach_m is not None:
         _step(progress, "measuring the over-water reach from the access points")
         zone, info = router.reach_zone([[p.x, p.y] for p in points], float(reach_m),
@@ -1201,6 +1335,7 @@ def build_frame(
 
     # ---- strata
     codes = None
+    covers = False
     if strata is None:
         pieces = [(_single_name(wgdf), frame_geom)]
     elif isinstance(strata, str) and strata == "shore-bands":
@@ -1217,15 +1352,19 @@ def build_frame(
         _step(progress, "cutting compact zones")
         pieces = [(f"Zone {i + 1}", z) for i, z in enumerate(compact_zones(frame_geom, int(zones)))]
         codes = [f"Z{i + 1}" for i in range(len(pieces))]
+    elif isinstance(strata, str) and strata == "water-bodies":
+        _step(progress, "making one stratum per water body")
+        pieces = water_body_strata(wgdf, frame_geom, name_field=name_field, whole_water=frame_geom is water_geom)
+        covers = True
     elif isinstance(strata, str):
-        raise SettingError("area.strata", strata, 'a polygon layer, "shore-bands" or "zones"')
+        raise SettingError("area.strata", strata, 'a polygon layer, "shore-bands", "zones" or "water-bodies"')
     else:
         _check_gdf(strata, "area.strata", "polygon")
         layer_notes += _layer_notes(strata)
         _step(progress, "clipping the strata to the frame")
         sg = _project(strata, crs, "area.strata", "polygon", notes)
         pieces = _strata_from_layer(sg, strata_field, frame_geom, notes)
-    strata_t = _finish_strata(pieces, codes, frame_geom, remainder, water_area, notes)
+    strata_t = _finish_strata(pieces, codes, frame_geom, remainder, water_area, notes, covers=covers)
     for n in notes:
         log.warning(n)
     return Frame(

@@ -41,7 +41,7 @@ __all__ = ["SCHEMA", "Plan", "Key", "load_plan", "load_plan_text", "plan_from_se
 from .stats.sizing import ALLOCATION_METHODS as ALLOCATIONS, BOUNDS  # the choices are defined once, there
 from .randomizer.space import METHODS as DRAW_METHODS  # noqa: E402
 WEEKDAYS = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
-GENERATED_STRATA = ("shore-bands", "zones")
+GENERATED_STRATA = ("shore-bands", "zones", "water-bodies")
 
 
 # --------------------------------------------------------------------------- value checks
@@ -169,8 +169,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
                              help="Access points on land within this distance snap to the nearest water."),
         "shore_m": Key(_band, "two numbers [min, max] in metres, min <= max", None,
                        help="Keep only water whose distance from shore lies in [min, max]."),
-        "strata": Key(_nonempty_text, 'a path to a polygon layer, "shore-bands" or "zones"', None,
-                      help="Strata: a polygon layer, or generated shore bands or compact zones."),
+        "strata": Key(_nonempty_text, 'a path to a polygon layer, "shore-bands", "zones" or "water-bodies"', None,
+                      help="Strata: a polygon layer, or generated shore bands, compact zones, or one stratum per "
+                           "water body of the water layer (named from name_field)."),
         "strata_layer": Key(_nonempty_text, "a layer name", None, help="Layer name inside a GeoPackage."),
         "strata_field": Key(_nonempty_text, "an attribute name", None, help="Attribute naming each stratum."),
         "bands_m": Key(_bands, "a list of distances from shore in metres, e.g. [0, 100, 500]", None,
