@@ -41,8 +41,10 @@ def test_bench_stratified_allocation(benchmark):
     assert a.error_bound <= 0.05 * (1 + 1e-9)
 
 
-def test_size_does_not_import_heavy_libraries():
+def test_size_does_not_import_heavy_libraries(benchmark):
+    # the benchmark fixture makes --benchmark-only run this check (it times the one process)
     code = ("import sys; from geosample.cli import main; main(['size', '--tolerance', '15', '--range', '80']); "
             "print(sorted(m for m in ('scipy', 'geopandas', 'folium', 'pandas', 'shapely') if m in sys.modules))")
-    out = subprocess.run([sys.executable, "-c", code], check=True, capture_output=True, text=True).stdout
+    out = benchmark.pedantic(lambda: subprocess.run([sys.executable, "-c", code], check=True, capture_output=True,
+                                                    text=True).stdout, rounds=1, iterations=1)
     assert out.strip().splitlines()[-1] == "[]"
