@@ -37,6 +37,9 @@ Checks
   flagged; they void the range-based bounds (see ``stats.estimate.assess``).
 - ``sampled_at`` more than :data:`TIME_TOLERANCE_H` hours from ``planned_time``, or on
   another date than ``visit_date`` (primaries), or outside the season (reserves).
+- ``sampled_at`` that is not ISO 8601 (or a bare ``HH:MM`` on the visit date) -- such as a
+  spreadsheet's rewriting ``6/2/27 8:06`` or a day number ``46541.34`` -- is not guessed at:
+  the result is still used, and one flag lists the rows (their time cannot be checked).
 """
 from __future__ import annotations
 
@@ -483,7 +486,10 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
                           tuple(r for r, _, _ in dups)))
     if bad_time:
         flags.append(Flag("sampled_at_unreadable", "sampled_at could not be read (write ISO 8601, e.g. "
-                          "2027-06-03T09:40-05:00 or 2027-06-03 09:40 in local time)", tuple(bad_time), severity="info"))
+                          "2027-06-03T09:40-05:00 or 2027-06-03 09:40 in local time; a spreadsheet may have "
+                          "rewritten the dates, as 6/2/27 8:06 or day numbers like 46541.34: format that column as "
+                          "text). These samples are used, without the check of their time against the plan",
+                          tuple(bad_time), severity="info"))
     if mismatch:
         flags.append(Flag("stratum_changed", "the stratum column differs from the design's; the design's stratum "
                           "is used", tuple(mismatch)))

@@ -68,6 +68,15 @@ def test_corpus_is_complete():
         assert _expect(case)[0], case
 
 
+def test_corpus_is_regenerated_byte_for_byte(tmp_path, monkeypatch):
+    monkeypatch.setattr(make_bad, "HERE", tmp_path)
+    make_bad.plan_cases()
+    make_bad.results_cases()
+    made = _tree_hashes(tmp_path)
+    stored = {k: v for k, v in _tree_hashes(BAD).items() if k != "make_bad.py" and "__pycache__" not in k}
+    assert made == stored
+
+
 @pytest.mark.parametrize("case", PLAN_CASES)
 def test_plan_case(case, tmp_path, capsys):
     work = tmp_path / "in"

@@ -100,9 +100,16 @@ def empty_gpkg(path: Path) -> None:
 
     import os
 
+    old = os.environ.get("OGR_CURRENT_DATE")
     os.environ["OGR_CURRENT_DATE"] = "2027-01-01T00:00:00.000Z"  # GDAL stamps this date: same bytes every run
-    gdf = geopandas.GeoDataFrame({"name": ["x"]}, geometry=[shapely.box(0, 0, 1, 1)], crs=4326).iloc[:0]
-    gdf.to_file(path, layer="tarn", driver="GPKG", engine="pyogrio")
+    try:
+        gdf = geopandas.GeoDataFrame({"name": ["x"]}, geometry=[shapely.box(0, 0, 1, 1)], crs=4326).iloc[:0]
+        gdf.to_file(path, layer="tarn", driver="GPKG", engine="pyogrio")
+    finally:
+        if old is None:
+            del os.environ["OGR_CURRENT_DATE"]
+        else:
+            os.environ["OGR_CURRENT_DATE"] = old
 
 
 def plan_cases() -> None:
@@ -221,7 +228,8 @@ RESULTS_EXPECT = {
     "results-utf16": (["NUL bytes", "UTF-16", "CSV UTF-8"], 2),
     "results-cp1252": (["not UTF-8", "cp1252"], 0),
     "results-semicolon": (["semicolons", "decimal commas"], 0),
-    "results-spreadsheet-dates": (["sampled_at could not be read", "ISO 8601"], 0),
+    "results-spreadsheet-dates": (["sampled_at could not be read", "ISO 8601",
+                                   "spreadsheet may have rewritten the dates"], 0),
 }
 
 
