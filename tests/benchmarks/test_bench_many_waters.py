@@ -97,3 +97,32 @@ def test_many_lakes_cost_grows_about_linearly(benchmark, layers):
     benchmark.extra_info.update({f"union_all_{n}": unions[n] for n in SIZES})
     assert times[10_000] < TARGET_S
     assert times[10_000] <= GROWTH_10K_OVER_3K * times[3000]
+
+
+def plain_loop_draw(region, n: int, seed: int = 5) -> np.ndarray:
+    """The reference: uniform points in the bounding box, tested one at a time with ``region.contains``."""
+    rng = np.random.default_rng(seed)
+    x0, y0, x1, y1 = region.bounds
+    out = []
+    while len(out) < n:
+        x, y = rng.uniform(x0, x1), rng.uniform(y0, y1)
+        if region.contains(shapely.Point(x, y)):
+            out.append((x, y))
+    return np.array(out)
+
+
+def test_bench_simple_draw_over_10000_lakes_against_a_plain_shapely_loop(benchmark, layers):
+    frame = build_frame(layers[10_000])
+    alloc = allocate([1.0], strata=[frame.strata[0].name], n=300, method="proportional")
+
+    def ours():
+        space._region_cached.cache_clear()
+        return space.draw_sites(frame, alloc, method="simple", reserve=0, seed=5, measure_balance=False)
+
+    def run():
+        return _best_of(ours), _best_of(lambda: plain_loop_draw(frame.water, 300), rounds=1)
+
+    t_ours, t_loop = benchmark.pedantic(run, rounds=1, iterations=1)
+    print(f"\n300 simple sites over 10,000 lakes: draw_sites {t_ours:.3f} s (cold), plain shapely loop {t_loop:.3f} s")
+    benchmark.extra_info.update({"draw_sites_simple_s": t_ours, "plain_shapely_loop_s": t_loop})
+    assert t_ours < t_loop
