@@ -592,25 +592,23 @@ def build_itinerary(
         if not 0 <= day_index < len(schedule.days):
             raise ValueError(f"visit day_index {day_index} is outside Schedule.days (0..{len(schedule.days) - 1})")
         day = schedule.days[day_index]
-        plan = _plan_day(
-            day_index, day, by_day[day_index], frame, m_per_min=m_per_min, on_site=minutes_on_site,
-            lab_minutes=lab_minutes, limit_min=limit_min, reverse=reverse, u_start=u_start,
-            max_day_minutes=max_day_minutes,
-        )
+        groups = _water_groups(by_day[day_index], frame)
+        if len(groups) > 1:
+            warnings.append(
+                f"On {day.date} the sites lie on {len(groups)} separate water bodies: the day is planned as "
+                f"{len(groups)} parts, one after the other, each from its own access point; road travel "
+                "between them is not planned: leave time for it."
+            )
         order = 0
-        for t_i, trip in enumerate(plan.trips, start=1):
-            ids = tuple(plan.site_ids[n] for n in trip.nodes)
-            for sid, arr in zip(ids, trip.arrive):
-                order += 1
-                updates[sid] = (plan.start + dt.timedelta(minutes=arr), order)
-            for sid, c in zip(ids if not trip.samples_depot else ids[1:],
-                              marginal_minutes(plan.dist, trip.nodes, m_per_min)):
-                marginal.setdefault(stratum_of[sid], []).append(c)
-            if trip.samples_depot:
-                # The first site is the depot: its marginal cost is what the tour saves without it.
-                marginal.setdefault(stratum_of[ids[0]], []).append(_depot_site_saving(plan, trip, m_per_min))
-            routes.append(_route(plan, trip, t_i, day, frame, to_lonlat, ids, limit_min, lab_minutes,
-                                 speed_kmh, warnings))
+        t_i = 0
+        for g_visits, g_day in zip(groups, _split_window(day, [len(g) for g in groups])):
+            plan = _plan_day(
+                day_index, g_day, g_visits, frame, m_per_min=m_per_min, on_site=minutes_on_site,
+                lab_minutes=lab_minutes, limit_min=limit_min, reverse=reverse, u_start=u_start,
+                max_day_minutes=max_day_minutes,
+            )
+            order, t_i = _collect_day(plan, day, frame, order, t_i, updates, marginal, routes, stratum_of,
+                                      to_lonlat, limit_min, lab_minutes, speed_kmh, m_per_min, warnings)
 
     visits = tuple(
         dataclasses.replace(v, planned_time=updates[v.site_id][0], route_order=updates[v.site_id][1])
@@ -687,3 +685,60 @@ def _route(
         lab_deadline_ok=ok,
         notes=tuple(notes),
     )
+
+
+def _collect_day(plan, day, frame, order, t_i, updates, marginal, routes, stratum_of, to_lonlat, limit_min,
+                 lab_minutes, speed_kmh, m_per_min, warnings):
+    """Planned times, route order, travel costs and routes of one planned (part of a) day."""
+    for trip in plan.trips:
+        t_i += 1
+        ids = tuple(plan.site_ids[n] for n in trip.nodes)
+        for sid, arr in zip(ids, trip.arrive):
+            order += 1
+            updates[sid] = (plan.start + dt.timedelta(minutes=arr), order)
+        for sid, c in zip(ids if not trip.samples_depot else ids[1:],
+                          marginal_minutes(plan.dist, trip.nodes, m_per_min)):
+            marginal.setdefault(stratum_of[sid], []).append(c)
+        if trip.samples_depot:
+            # The first site is the depot: its marginal cost is what the tour saves without it.
+            marginal.setdefault(stratum_of[ids[0]], []).append(_depot_site_saving(plan, trip, m_per_min))
+        routes.append(_route(plan, trip, t_i, day, frame, to_lonlat, ids, limit_min, lab_minutes,
+                             speed_kmh, warnings))
+    return order, t_i
+
+
+def _water_groups(day_visits: Sequence[Visit], frame: Frame) -> list[list[Visit]]:
+    """The day's visits in one group, or one group per access point when no access point reaches them all.
+
+    A regional frame can hold several separate lakes, each with its own launch: a day whose
+    random sites fall on two lakes is then worked lake by lake, each from the nearest access
+    point that reaches its sites over water.
+    """
+    if not frame.access or frame.router is None or len(day_visits) < 2:
+        return [list(day_visits)]
+    acc_xy = np.array([[a.x, a.y] for a in frame.access], dtype=float)
+    sites_xy = np.array([[v.x, v.y] for v in day_visits], dtype=float)
+    full = _distances(frame.router, np.vstack([acc_xy, sites_xy]))
+    m = len(frame.access)
+    to_sites = full[:m, m:]
+    if np.all(np.isfinite(to_sites), axis=1).any() or not np.all(np.isfinite(to_sites).any(axis=0)):
+        return [list(day_visits)]  # one access point reaches all, or some site none (reported by _plan_day)
+    nearest = np.argmin(np.where(np.isfinite(to_sites), to_sites, np.inf), axis=0)
+    groups: dict[int, list[Visit]] = {}
+    for v, a in zip(day_visits, nearest):
+        groups.setdefault(int(a), []).append(v)
+    return [groups[a] for a in sorted(groups)]
+
+
+def _split_window(day: FieldDay, sizes: Sequence[int]) -> list[FieldDay]:
+    """The day's window cut into consecutive parts with lengths proportional to ``sizes``."""
+    if len(sizes) == 1:
+        return [day]
+    total = float(sum(sizes))
+    span = day.window_end - day.window_start
+    out, start = [], day.window_start
+    for i, k in enumerate(sizes):
+        end = day.window_end if i == len(sizes) - 1 else start + span * (k / total)
+        out.append(dataclasses.replace(day, window_start=start, window_end=end))
+        start = end
+    return out

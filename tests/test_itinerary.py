@@ -434,3 +434,39 @@ def test_any_day_fits_its_window_and_orders_all_sites(k, data_seed, seed, holdin
     assert sorted(v.route_order for v in out.visits) == list(range(1, k + 1))
     for r in out.routes:
         assert r.lab_deadline_ok == (trip_holding_minutes(r, visits, 30) <= 60 * holding_h + 1e-6)
+
+
+def test_a_day_on_two_separate_lakes_is_worked_lake_by_lake():
+    # Two invented ponds 3 km apart, a launch on each: no launch reaches both over water, so the
+    # day is planned as two parts, each from its own launch, one after the other in the window.
+    import geopandas
+    import shapely
+
+    from geosample.geometry import build_frame
+
+    x0, y0 = 610000.0, 5100000.0
+    ponds = [shapely.box(x0, y0, x0 + 800, y0 + 800), shapely.box(x0 + 3800, y0, x0 + 4600, y0 + 800)]
+    water = geopandas.GeoDataFrame({"name": ["Lintel Pond", "Fennick Pond"]}, geometry=ponds, crs=32614)
+    launches = geopandas.GeoDataFrame({"name": ["West launch", "East launch"]},
+                                      geometry=[shapely.Point(x0 + 5, y0 + 400), shapely.Point(x0 + 4595, y0 + 400)],
+                                      crs=32614)
+    frame = build_frame(water, access=launches, reach_m=5000)
+    tz = ZoneInfo("America/Chicago")
+    day = FieldDay(dt.date(2027, 6, 1), dt.datetime(2027, 6, 1, 7, 0, tzinfo=tz),
+                   dt.datetime(2027, 6, 1, 17, 0, tzinfo=tz))
+    xy = [(x0 + 200, y0 + 200), (x0 + 600, y0 + 600), (x0 + 4000, y0 + 300), (x0 + 4400, y0 + 500)]
+    visits = tuple(Visit(f"S-00{i}", "A", "primary", 0, x, y, 0.0, 0.0, visit_date=day.date, day_index=0)
+                   for i, (x, y) in enumerate(xy, start=1))
+    out = build_itinerary(Schedule(visits, (day,)), frame, seed=3)
+    assert sorted(r.access for r in out.routes) == ["East launch", "West launch"]
+    by_access = {r.access: r for r in out.routes}
+    assert set(by_access["West launch"].site_ids) == {"S-001", "S-002"}
+    assert set(by_access["East launch"].site_ids) == {"S-003", "S-004"}
+    first, second = sorted(out.routes, key=lambda r: r.start)
+    times = {v.site_id: v.planned_time for v in out.visits}
+    # one crew: the first part's sampling ends before the second part's begins
+    assert max(times[s] for s in first.site_ids) < min(times[s] for s in second.site_ids)
+    for v in out.visits:
+        assert day.window_start <= v.planned_time <= day.window_end
+    assert sorted(v.route_order for v in out.visits) == [1, 2, 3, 4]
+    assert any("separate water bodies" in w for w in out.warnings)
