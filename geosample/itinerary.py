@@ -61,7 +61,6 @@ log = logging.getLogger(__name__)
 
 STRAIGHT_LINE_WARNING = "Over-water distances were not available; routes use straight lines"
 MAX_ACCESS_CANDIDATES = 12
-_MORNING_HOUR = 10.0
 
 
 # --------------------------------------------------------------------------- tours
@@ -429,44 +428,11 @@ def marginal_minutes(dist: np.ndarray, trip_nodes: Sequence[int], m_per_min: flo
     return out
 
 
-def _local_hour(t: dt.datetime) -> float:
-    return t.hour + t.minute / 60.0 + t.second / 3600.0
-
-
-def _simple_time_of_day(visits: Sequence[Visit]) -> dict[str, dict[str, float]]:
-    """Per stratum: earliest, median and latest local hour of the planned times, share before 10:00."""
-    by: dict[str, list[float]] = {}
-    for v in visits:
-        if v.role == "primary" and v.planned_time is not None:
-            by.setdefault(v.stratum, []).append(_local_hour(v.planned_time))
-    out = {}
-    for name, hours in by.items():
-        h = np.array(hours)
-        out[name] = {
-            "n": float(h.size),
-            "earliest_h": float(h.min()),
-            "median_h": float(np.median(h)),
-            "latest_h": float(h.max()),
-            "share_before_10": float(np.mean(h < _MORNING_HOUR)),
-        }
-    return out
-
-
 def _time_of_day(schedule: Schedule) -> dict[str, dict[str, float]]:
-    """The time module's per-stratum summary when it has one, else :func:`_simple_time_of_day`.
+    """Per-stratum spread of the routed planned times (the time module's summary)."""
+    from .randomizer.time import time_of_day_summary
 
-    ``randomizer.time.time_of_day_summary`` is called with the Schedule when its
-    first parameter is named ``schedule``, with the visits otherwise.
-    """
-    try:
-        from .randomizer.time import time_of_day_summary  # type: ignore[attr-defined]
-    except ImportError:
-        return _simple_time_of_day(schedule.visits)
-    import inspect
-
-    params = list(inspect.signature(time_of_day_summary).parameters)
-    arg = schedule if params and params[0] == "schedule" else schedule.visits
-    return dict(time_of_day_summary(arg))
+    return dict(time_of_day_summary(schedule.visits))
 
 
 # --------------------------------------------------------------------------- checks

@@ -15,7 +15,8 @@ import pyproj
 import pytest
 
 from geosample.errors import InfeasibleError, SettingError
-from geosample.itinerary import STRAIGHT_LINE_WARNING, _simple_time_of_day, build_itinerary
+from geosample.itinerary import STRAIGHT_LINE_WARNING, build_itinerary
+from geosample.randomizer.time import time_of_day_summary
 from geosample.model import AccessPoint, FieldDay, Frame, Schedule, Visit
 
 TZ = ZoneInfo("America/Chicago")
@@ -390,12 +391,12 @@ def test_same_seed_same_itinerary_other_seed_can_reverse():
 
 
 # --------------------------------------------------------------------------- summaries
-def test_simple_time_of_day_summary():
+def test_time_of_day_summary_by_hand():
     day = field_day(dt.date(2027, 6, 1))
     times = [(7, 30), (9, 0), (13, 45)]
     visits = [Visit(f"N-{i}", "North", "primary", 0, 0, 0, 0, 0, day.date,
                     dt.datetime(2027, 6, 1, h, m, tzinfo=TZ), 0) for i, (h, m) in enumerate(times)]
-    s = _simple_time_of_day(visits)["North"]
+    s = time_of_day_summary(visits)["North"]
     # by hand: 7.5, 9.0, 13.75 local hours; two of three before 10:00
     assert s["earliest_h"] == 7.5 and s["median_h"] == 9.0 and s["latest_h"] == 13.75
     assert s["share_before_10"] == pytest.approx(2 / 3)
