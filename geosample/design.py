@@ -152,7 +152,7 @@ def allocation_from_plan(plan: Plan, frame: Frame):
         [s.weight for s in frame.strata],
         strata=names,
         n=size.get("n"),
-        tolerance=size.get("tolerance") if size.get("n") is None else size.get("tolerance"),
+        tolerance=size.get("tolerance"),
         method=size["allocation"],
         sd=_per_stratum(size, names, "sd"),
         range=_per_stratum(size, names, "range"),
@@ -181,7 +181,7 @@ def _sizing_summary(plan: Plan, frame: Frame, allocation) -> dict:
             "sd": None if sd is None else sd[i], "range": None if rng_ is None else rng_[i],
             "cost": None if cost is None else cost[i],
         })
-    assumption = sizing.ASSUMPTIONS.get(size["bound"], "") if hasattr(sizing, "ASSUMPTIONS") else ""
+    assumption = sizing.ASSUMPTIONS.get(size["bound"], "")
     conf = allocation.confidence
     tol = allocation.achieved_tolerance
     units = survey.get("units") or ""
@@ -195,7 +195,7 @@ def _sizing_summary(plan: Plan, frame: Frame, allocation) -> dict:
         )
     else:
         guarantee = f"{allocation.total} primary samples; error probability at most {allocation.error_bound:.4f}."
-    formula = getattr(sizing, "FORMULAS", {}).get(size["bound"], "") if hasattr(sizing, "FORMULAS") else ""
+    formula = sizing.FORMULAS.get(size["bound"], "")
     return {
         "formula": formula,
         "inputs": {k: size.get(k) for k in ("tolerance", "range", "sd", "confidence", "bound", "sides",

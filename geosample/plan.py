@@ -30,16 +30,17 @@ import difflib
 import hashlib
 import math
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable
 
 from .errors import InputFileError, PlanError, SettingError
+from .randomizer.space import METHODS as DRAW_METHODS  # the choices are defined once, in their modules
+from .stats.sizing import ALLOCATION_METHODS as ALLOCATIONS
+from .stats.sizing import BOUNDS
 
-__all__ = ["SCHEMA", "Plan", "Key", "load_plan", "load_plan_text", "plan_from_settings", "sha256_file"]
+__all__ = ["SCHEMA", "Plan", "Key", "load_plan", "load_plan_text", "plan_from_settings"]
 
-from .stats.sizing import ALLOCATION_METHODS as ALLOCATIONS, BOUNDS  # the choices are defined once, there
-from .randomizer.space import METHODS as DRAW_METHODS  # noqa: E402
 WEEKDAYS = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
 GENERATED_STRATA = ("shore-bands", "zones", "water-bodies")
 
@@ -283,14 +284,6 @@ class Plan:
 
 
 # --------------------------------------------------------------------------- loading
-def sha256_file(path: Path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for chunk in iter(lambda: fh.read(1 << 20), b""):
-            h.update(chunk)
-    return h.hexdigest()
-
-
 def load_plan(path: str | Path) -> Plan:
     """Read and validate a plan file.
 

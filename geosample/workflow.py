@@ -14,7 +14,7 @@ import datetime as dt
 import logging
 import shutil
 import tempfile
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
 from typing import Callable
