@@ -34,7 +34,7 @@ Checks
   (the default) a :class:`ResultsError` listing every such row, and so are
   unreadable results; with ``strict=False`` the rows are flagged and left out.
 - Results outside the declared range (``size.range``, ``size.strata.<name>.range``):
-  flagged; they void the range-based bounds (see ``stats.estimate.assess``).
+  flagged; they void the range-based bounds (see ``stats.assessment.assess``).
 - ``sampled_at`` more than :data:`TIME_TOLERANCE_H` hours from ``planned_time``, or on
   another date than ``visit_date`` (primaries), or outside the season (reserves).
 - ``sampled_at`` that is not ISO 8601 (or a bare ``HH:MM`` on the visit date) -- such as a
@@ -664,7 +664,7 @@ def _date(v: Any) -> dt.date | None:
 
 
 def _per_stratum(manifest: dict, names: list[str], usable: list[Record], statistic: str):
-    from .stats.estimate import declared_support, to_analysis_scale
+    from .stats.intervals import declared_support, to_analysis_scale
 
     settings = manifest.get("settings", {})
     alloc = manifest.get("allocation") or {}

@@ -204,7 +204,7 @@ def test_adjust_option_changes_the_adjustment_and_lists_every_stratum(design, tm
 
 def test_cli_choices_come_from_the_library():
     from geosample.cli.assess import ADJUST_CHOICES
-    from geosample.stats.estimate import ADJUST_METHODS
+    from geosample.stats.decisions import ADJUST_METHODS
 
     assert tuple(ADJUST_CHOICES) == tuple(ADJUST_METHODS)
 

@@ -8,7 +8,7 @@ import click
 from . import cli as group
 from ._common import command, echo_json
 
-ADJUST_CHOICES = ("holm", "bh", "bonferroni", "none")  # = geosample.stats.estimate.ADJUST_METHODS (checked in tests)
+ADJUST_CHOICES = ("holm", "bh", "bonferroni", "none")  # = geosample.stats.decisions.ADJUST_METHODS (checked in tests)
 
 
 @command(group, "assess", short_help="Estimate, interval, decision and statement from the crew's results.")
@@ -41,7 +41,7 @@ def assess_command(out: Path, results: Path, as_json: bool, next_plan: Path | No
     from ..errors import OutputExistsError
     from ..export.assessment import HTML_NAME, write_assessment, write_next_plan
     from ..results import read_design_folder, read_results
-    from ..stats.estimate import assess
+    from ..stats.assessment import assess
 
     if next_plan is not None and next_plan.exists() and not overwrite:
         raise OutputExistsError(f"--next-plan file {str(next_plan)!r} exists already. Choose another file name, "

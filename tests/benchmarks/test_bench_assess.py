@@ -16,7 +16,8 @@ from test_results import fill, write_csv, write_design_folder  # noqa: E402
 
 from geosample.export.assessment import write_assessment  # noqa: E402
 from geosample.results import read_results  # noqa: E402
-from geosample.stats.estimate import assess, betting_interval, betting_sequence  # noqa: E402
+from geosample.stats.assessment import assess  # noqa: E402
+from geosample.stats.betting import betting_interval, betting_sequence  # noqa: E402
 
 
 @pytest.fixture(scope="module", params=["chebyshev", "betting"])

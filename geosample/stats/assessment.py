@@ -1,0 +1,501 @@
+"""``assess``: the estimate, interval, decision, statement, per-stratum figures and next allocation.
+
+Takes a :class:`geosample.results.Results` and a manifest dict and returns a frozen
+:class:`Assessment`; nothing here reads or writes a file. The bound is the plan's
+(``size.bound``); the formulas are in :mod:`geosample.stats.intervals` and
+:mod:`geosample.stats.betting`, decisions and wording in
+:mod:`geosample.stats.decisions`, the next round's allocation in
+:mod:`geosample.stats.reallocation`. With several strata the betting bound runs
+one sequence per stratum at a / H, combined with the weights.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+from typing import Any
+
+import numpy as np
+
+from ..errors import ResultsError, SettingError
+from .betting import BettingSequence, _log_k, _theta, betting_bounds, betting_sequence, prpl_bets
+from .decisions import (
+    ADJUST_METHODS,
+    BOUND_ASSUMPTIONS,
+    adjust_pvalues,
+    decide,
+    decision_statement,
+    format_estimate,
+    statement,
+    stratum_pvalue,
+)
+from .intervals import (
+    RANGE_BOUNDS,
+    SUPPORT_BOUNDS,
+    Interval,
+    bernstein_half_width,
+    cantelli_half_width,
+    chebyshev_half_width,
+    declared_support,
+    hoeffding_half_width,
+    stratified_mean,
+    t_half_width,
+    to_analysis_scale,
+)
+from .reallocation import Reallocation, reallocate
+
+__all__ = ["StratumEstimate", "Sequential", "Assessment", "assess"]
+
+
+@dataclass(frozen=True)
+class StratumEstimate:
+    """One stratum's figures (analysis scale for mean/sd; original scale in ``display``)."""
+
+    name: str
+    weight: float
+    n: int
+    n_planned: int | None
+    mean: float
+    sd: float | None
+    low: float
+    high: float
+    censored_left: int = 0
+    censored_right: int = 0
+    p_value: float | None = None
+    p_adjusted: float | None = None
+    decision: str | None = None
+
+
+@dataclass(frozen=True)
+class Sequential:
+    """What the results say as a sequence: when the claim was established, or how far it is."""
+
+    established_after: int | None
+    more_needed: int | None
+    note: str
+
+
+@dataclass(frozen=True)
+class Assessment:
+    """Everything ``geosample assess`` reports.
+
+    Figures named ``estimate, low, high`` are on the original scale (for a
+    geometric mean: back-transformed); ``interval`` holds the analysis scale
+    (log10 for ``geomean``). ``decision`` is ``"below"``, ``"above"``,
+    ``"not established"`` or None (no criterion).
+    """
+
+    statistic: str
+    parameter: str
+    units: str
+    frame_label: str
+    season: tuple[str, str]
+    estimate: float
+    low: float | None
+    high: float | None
+    interval: Interval
+    confidence: float
+    bound: str
+    planned_bound: str
+    sides: str
+    direction: str
+    criterion: float | None
+    n: int
+    n_planned: int | None
+    decision: str | None
+    statement: str
+    decision_text: str
+    assumption: str
+    strata: tuple[StratumEstimate, ...]
+    adjust: str
+    sequential: Sequential
+    next_allocation: Reallocation | None
+    flags: tuple[Any, ...] = ()
+    notes: tuple[str, ...] = ()
+    range_void: bool = False
+
+    def as_dict(self) -> dict[str, Any]:
+        """Plain data for ``--json`` and the HTML report."""
+        back = self.statistic == "geomean"
+        strata = []
+        for s in self.strata:
+            strata.append({
+                "name": s.name, "weight": s.weight, "n": s.n, "n_planned": s.n_planned,
+                "mean": _back(s.mean, back), "sd": s.sd, "sd_scale": "log10" if back else "original",
+                "low": _back(s.low, back), "high": _back(s.high, back),
+                "censored_left": s.censored_left, "censored_right": s.censored_right,
+                "p_value": s.p_value, "p_adjusted": s.p_adjusted, "decision": s.decision,
+            })
+        return {
+            "statistic": self.statistic, "parameter": self.parameter, "units": self.units,
+            "frame": self.frame_label, "season": list(self.season),
+            "estimate": self.estimate, "low": self.low, "high": self.high,
+            "half_width": self.interval.half_width if not back else None,
+            "factor": (10 ** self.interval.half_width if back and self.interval.half_width is not None else None),
+            "analysis_scale": {"estimate": self.interval.estimate, "low": _finite(self.interval.low),
+                               "high": _finite(self.interval.high), "scale": "log10" if back else "original"},
+            "confidence": self.confidence, "bound": self.bound, "planned_bound": self.planned_bound,
+            "sides": self.sides, "direction": self.direction, "criterion": self.criterion,
+            "n": self.n, "n_planned": self.n_planned, "decision": self.decision,
+            "statement": self.statement, "decision_statement": self.decision_text,
+            "assumption": self.assumption, "adjust": self.adjust, "strata": strata,
+            "sequential": {"established_after": self.sequential.established_after,
+                           "more_needed": self.sequential.more_needed, "note": self.sequential.note},
+            "next_allocation": None if self.next_allocation is None else self.next_allocation.as_dict(),
+            "flags": [_flag_dict(f) for f in self.flags],
+            "notes": list(self.notes), "range_void": self.range_void,
+        }
+
+
+def _flag_dict(f: Any) -> dict:
+    if hasattr(f, "as_dict"):
+        return f.as_dict()
+    return {"kind": getattr(f, "kind", ""), "message": str(getattr(f, "message", f)),
+            "rows": list(getattr(f, "rows", ()))}
+
+
+def _finite(v: float) -> float | None:
+    return float(v) if np.isfinite(v) else None
+
+
+def _back(v: float | None, back: bool) -> float | None:
+    if v is None or not np.isfinite(v):
+        return None
+    return float(10 ** v) if back else float(v)
+
+
+# --------------------------------------------------------------------------- assess
+@dataclass(frozen=True)
+class _Stratum:
+    name: str
+    weight: float
+    y: np.ndarray  # analysis scale, time order
+    lower: float
+    L: float | None
+    n_planned: int | None
+    censored_left: int
+    censored_right: int
+
+
+def _stratum_inputs(results: Any, manifest: dict) -> list[_Stratum]:
+    settings = manifest.get("settings", {})
+    statistic = settings.get("survey", {}).get("statistic", "mean")
+    frame = manifest.get("frame", {}).get("strata", [])
+    alloc = manifest.get("allocation", {}) or {}
+    planned = dict(zip(alloc.get("strata", ()), alloc.get("n", ())))
+    by_name = {s.name: s for s in results.strata}
+    out = []
+    for fs in frame:
+        name = fs["name"]
+        sr = by_name.get(name)
+        y = to_analysis_scale(np.asarray(sr.values if sr else (), float), statistic)
+        lower, L = declared_support(settings, name)
+        cl = sum(1 for c in (sr.censored if sr else ()) if c == "left")
+        cr = sum(1 for c in (sr.censored if sr else ()) if c == "right")
+        out.append(_Stratum(name, float(fs["weight"]), y, lower, L, planned.get(name), cl, cr))
+    return out
+
+
+def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str, direction: str,
+              path: bool = False) -> tuple[
+        Interval, BettingSequence | None, list[BettingSequence]]:
+    w = np.array([s.weight for s in strata])
+    n_h = np.array([s.y.size for s in strata])
+    means = np.array([s.y.mean() for s in strata])
+    est = float(stratified_mean(w, means))
+    H = len(strata)
+    a = 1 - confidence
+    notes: list[str] = []
+    seqs: list[BettingSequence] = []
+    if bound in ("chebyshev", "cantelli", "hoeffding"):
+        L = np.array([s.L for s in strata], float)
+        if bound == "chebyshev":
+            d = chebyshev_half_width(w, n_h, L, confidence)
+            if sides == "one":
+                notes.append("Chebyshev used one-sided: valid, conservative (Cantelli is the one-sided form)")
+        elif bound == "cantelli":
+            d = cantelli_half_width(w, n_h, L, confidence)
+        else:
+            d = hoeffding_half_width(w, n_h, L, confidence, sides)
+        df = None
+    elif bound == "t":
+        sds = np.array([s.y.std(ddof=1) for s in strata])
+        d_arr, df_arr = t_half_width(w, n_h, sds, confidence, sides)
+        d, df = float(d_arr), float(df_arr)
+    elif bound == "bernstein":
+        k = 1 if sides == "one" else 2
+        parts = [bernstein_half_width(s.y.size, float(s.y.std(ddof=1)) if s.y.size > 1 else 0.0, s.L, a / (k * H))
+                 for s in strata]
+        d, df = float(np.dot(w, parts)), None
+        if H > 1:
+            notes.append(f"empirical Bernstein bound in each of the {H} strata at error {a / H:.4g} "
+                         "(union bound), combined with the area weights")
+    elif bound == "betting":
+        lo = hi = 0.0
+        for s in strata:
+            x = (s.y - s.lower) / s.L
+            if path:
+                seq = betting_sequence(x, alpha=a / H, sides=sides, direction=direction)
+                seqs.append(seq)
+                l01, h01 = seq.low_final, seq.high_final
+            else:
+                l01, h01 = betting_bounds(x, alpha=a / H, sides=sides, direction=direction)
+            lo += s.weight * (s.lower + s.L * l01)
+            hi += s.weight * (s.lower + s.L * h01)
+        if H > 1:
+            notes.append(f"betting confidence sequence in each of the {H} strata at error {a / H:.4g} (union bound "
+                         "over strata), end points combined with the area weights: valid, but wider than a "
+                         "single-stratum sequence would be")
+        if sides == "one":
+            lo, hi = (-math.inf, hi) if direction == "below" else (lo, math.inf)
+        return Interval(est, lo, hi, confidence, "betting", sides, None, None, tuple(notes)), None, seqs
+    else:
+        raise SettingError("size.bound", bound, "chebyshev | cantelli | hoeffding | bernstein | t | betting")
+    lo, hi = est - d, est + d
+    if sides == "one":
+        lo, hi = (-math.inf, hi) if direction == "below" else (lo, math.inf)
+    return Interval(est, lo, hi, confidence, bound, sides, float(d), df, tuple(notes)), None, seqs
+
+
+def _established_after(strata: list[_Stratum], seqs: list[BettingSequence], order: list[tuple[int, int]],
+                       criterion: float, direction: str, sides: str, confidence: float) -> int | None:
+    """The first k (samples in the order taken) at which the running betting set excludes the criterion."""
+    want_below = not (sides == "one" and direction == "above")
+    want_above = not (sides == "one" and direction == "below")
+    if len(strata) == 1:
+        s = strata[0]
+        m = (criterion - s.lower) / s.L
+        if 0 < m < 1:  # exactly, at the criterion: rejected by K- means every mean >= criterion is rejected
+            x = (s.y - s.lower) / s.L
+            a = 1 - confidence
+            lam = prpl_bets(x, a, sides)
+            theta = _theta(sides, direction)
+            hit = np.zeros(x.size, dtype=bool)
+            if want_below and theta < 1:
+                hit |= math.log(1 - theta) + _log_k(x, np.array([m]), lam, 0.5, -1)[:, 0] >= math.log(1 / a)
+            if want_above and theta > 0:
+                hit |= math.log(theta) + _log_k(x, np.array([m]), lam, 0.5, +1)[:, 0] >= math.log(1 / a)
+            return int(np.argmax(hit)) + 1 if hit.any() else None
+    # combined running interval after each sample (union bound over strata), on the sequences' grids
+    H = len(strata)
+    idx = np.array([h for h, _ in order], dtype=int)
+    counts = np.cumsum(np.eye(H, dtype=int)[idx], axis=0)  # (n, H): samples of each stratum so far
+    lo = np.zeros(len(idx))
+    hi = np.zeros(len(idx))
+    for h, (s, q) in enumerate(zip(strata, seqs)):
+        lo += s.weight * (s.lower + s.L * q.low[counts[:, h]])
+        hi += s.weight * (s.lower + s.L * q.high[counts[:, h]])
+    hit = np.zeros(len(idx), dtype=bool)
+    if want_below:
+        hit |= hi < criterion
+    if want_above:
+        hit |= lo > criterion
+    return int(np.argmax(hit)) + 1 if hit.any() else None
+
+
+def _sequential(bound: str, iv: Interval, strata: list[_Stratum], seqs: list[BettingSequence],
+                order: list[tuple[int, int]], criterion: float | None, decision: str | None,
+                direction: str, sides: str) -> Sequential:
+    n = sum(s.y.size for s in strata)
+    if criterion is None:
+        return Sequential(None, None, "no criterion: nothing to establish")
+    established = None
+    if bound == "betting" and seqs:
+        established = _established_after(strata, seqs, order, criterion, direction, sides, iv.confidence)
+    if decision in ("below", "above"):
+        if established is None:
+            established = n
+        note = (f"established after {established} samples" + (
+            " (the betting sequence is valid at every sample size, so this may be checked after every field day)"
+            if bound == "betting" else
+            f" (the {bound} interval holds at a sample size fixed in advance; checking after every field day and "
+            "stopping when it clears the criterion is covered only by the betting bound)"))
+        return Sequential(established, 0, note)
+    est = iv.estimate
+    if sides == "one" and direction == "below":
+        width, dist = iv.high - est, criterion - est
+    elif sides == "one":
+        width, dist = est - iv.low, est - criterion
+    else:
+        width = (iv.high - est) if est < criterion else (est - iv.low)
+        dist = abs(criterion - est)
+    if not (dist > 0 and np.isfinite(width)):
+        return Sequential(None, None, "not established, and the estimate lies on the criterion or on the wrong side "
+                          "of it: more samples cannot be projected to establish the claim")
+    need = n * (width / dist) ** 2
+    more = max(1, int(math.ceil(need - n)))
+    return Sequential(None, more, f"about {more} more samples needed (an estimate: it assumes the mean and spread stay "
+                      "as observed so far, the interval narrows like 1/sqrt(n) and the new samples are spread over "
+                      "the strata like these)")
+
+
+def _clip(iv: Interval, lo: float, hi: float) -> Interval:
+    """The interval cut to ``[lo, hi]`` on its finite sides (the same object when nothing changes)."""
+    low = max(iv.low, lo) if np.isfinite(iv.low) else iv.low
+    high = min(iv.high, hi) if np.isfinite(iv.high) else iv.high
+    if low == iv.low and high == iv.high:
+        return iv
+    return replace(iv, low=low, high=high, half_width=None)
+
+
+def _frame_label(manifest: dict) -> str:
+    settings = manifest.get("settings", {})
+    title = settings.get("survey", {}).get("title") or "the survey"
+    area = (manifest.get("frame") or {}).get("area_m2")
+    H = len((manifest.get("frame") or {}).get("strata") or [])
+    size = f"{area / 1e6:.3g} km² " if area else ""
+    return f"the {size}sampling frame of \u201c{title}\u201d ({H} strat{'um' if H == 1 else 'a'})"
+
+
+def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
+    """The estimate, interval, decision, statement, per-stratum comparisons and next allocation.
+
+    Parameters
+    ----------
+    results : geosample.results.Results
+        What :func:`geosample.results.read_results` returned.
+    manifest : dict
+        The design folder's ``manifest.json``.
+    adjust : {"holm", "bh", "bonferroni", "none"}
+        Adjustment of the per-stratum p-values.
+
+    Raises
+    ------
+    ResultsError
+        A stratum has no usable result, or the t interval needs a second result in a stratum.
+    """
+    if adjust not in ADJUST_METHODS:
+        raise SettingError("--adjust", adjust, " | ".join(ADJUST_METHODS))
+    settings = manifest.get("settings", {})
+    survey, size = settings.get("survey", {}), settings.get("size", {})
+    statistic = survey.get("statistic", "mean")
+    criterion = survey.get("criterion")
+    direction = survey.get("direction", "below") or "below"
+    confidence = float(size.get("confidence", 0.95))
+    sides = size.get("sides", "two")
+    planned = size.get("bound", "chebyshev")
+    strata = _stratum_inputs(results, manifest)
+    notes: list[str] = list(getattr(results, "notes", ()))
+    empty = [s.name for s in strata if s.y.size == 0]
+    if empty:
+        raise ResultsError(
+            f"stratum {', '.join(repr(e) for e in empty)} has no usable result, so the stratified mean over the "
+            "frame cannot be estimated. Sample its primary sites (or its reserves, in reserve_rank order) and "
+            "add the results.")
+    if criterion is not None and statistic == "geomean" and criterion <= 0:
+        raise SettingError("survey.criterion", criterion, "a number above 0 for a geometric mean (its log10 is taken)")
+    a_crit = None if criterion is None else (math.log10(criterion) if statistic == "geomean" else float(criterion))
+    # which bound can be used
+    bound = planned
+    range_void = False
+    void_strata = set(getattr(results, "range_exceeded", ()))
+    if planned in SUPPORT_BOUNDS:
+        void_strata |= set(getattr(results, "outside_support", ()))
+    if planned in RANGE_BOUNDS and (void_strata or any(s.L is None for s in strata)):
+        range_void = True
+        bound = "t"
+        why = (f"results in {', '.join(sorted(void_strata))} lie outside the plan's declared range"
+               if void_strata else "the plan declares no range for some strata")
+        notes.append(f"The {planned} bound does not hold: {why}, and its guarantee rests on that range. "
+                     "The interval is a Student t interval instead, whose confidence is approximate (see its "
+                     "assumption). Fix the range in the plan for the next season.")
+    if bound == "bernstein" and any(s.y.size < 2 for s in strata):
+        bound = "chebyshev"
+        notes.append("The empirical Bernstein bound needs at least 2 results per stratum to estimate the spread; "
+                     "the Chebyshev bound (which needs only the declared range) is used instead.")
+    if bound == "t":
+        short = [s.name for s in strata if s.y.size < 2]
+        if short:
+            raise ResultsError(
+                f"stratum {', '.join(repr(x) for x in short)} has only 1 usable result; the t interval"
+                + (f" (used because the {planned} bound is void)" if range_void else "")
+                + " needs at least 2 per stratum to estimate the spread. Sample a reserve there (in reserve_rank "
+                "order), or declare a range that the results respect.")
+    iv, _, seqs = _interval(bound, strata, confidence, sides, direction, path=a_crit is not None)
+    # a mean of concentrations or counts is not negative: the interval's lower end is cut at the weighted lower
+    # end of the range (0 unless size.lower says otherwise); the upper end is left alone, since the plan
+    # declares the range's length, not where it ends (betting works inside the range by construction)
+    clip = (bound in RANGE_BOUNDS and bound != "betting" and statistic == "mean"
+            and not set(getattr(results, "outside_support", ())))
+    if clip:
+        floor = float(np.dot([s.weight for s in strata], [s.lower for s in strata]))
+        clipped = _clip(iv, floor, math.inf)
+        if clipped is not iv:
+            notes.append(f"the interval's lower end is cut at {floor:g}: the mean cannot be lower (results are not "
+                         "below the lower end of the declared range)")
+        iv = clipped
+    notes += list(iv.notes)
+    decision = decide(iv.low, iv.high, a_crit, sides, direction)
+    # per-stratum figures and comparisons
+    per: list[StratumEstimate] = []
+    pvals: list[float] = []
+    for s in strata:
+        sd = float(s.y.std(ddof=1)) if s.y.size > 1 else None
+        one = _interval(bound if not (bound == "t" and s.y.size < 2) else "chebyshev", [
+            _Stratum(s.name, 1.0, s.y, s.lower, s.L, s.n_planned, 0, 0)], confidence, sides, direction)[0]
+        if clip:
+            one = _clip(one, s.lower, math.inf)
+        p = None
+        if a_crit is not None:
+            p = stratum_pvalue(bound, s.y, a_crit, L=s.L, lower=s.lower, confidence=confidence, sides=sides,
+                               direction=direction)
+            pvals.append(p)
+        per.append(StratumEstimate(s.name, s.weight, int(s.y.size), s.n_planned, float(s.y.mean()), sd, one.low,
+                                   one.high, s.censored_left, s.censored_right, p))
+    if a_crit is not None:
+        adj = adjust_pvalues(pvals, adjust)
+        alpha = 1 - confidence
+        new = []
+        for s, pa in zip(per, adj):
+            if pa <= alpha:
+                d = direction if sides == "one" else ("below" if s.mean < a_crit else "above")
+            else:
+                d = "not established"
+            new.append(replace(s, p_adjusted=float(pa), decision=d))
+        per = new
+    # sequence
+    order = list(getattr(results, "order", ()) or [])
+    name_index = {s.name: i for i, s in enumerate(strata)}
+    order_idx = [(name_index[nm], k) for nm, k in order if nm in name_index] if order else [
+        (h, k) for h, s in enumerate(strata) for k in range(s.y.size)]
+    seq = _sequential(bound, iv, strata, seqs, order_idx, a_crit, decision, direction, sides)
+    # back to the original scale and wording
+    geo = statistic == "geomean"
+    est = 10 ** iv.estimate if geo else iv.estimate
+    low = (10 ** iv.low if geo else iv.low) if np.isfinite(iv.low) else None
+    high = (10 ** iv.high if geo else iv.high) if np.isfinite(iv.high) else None
+    units = survey.get("units", "")
+    figure = format_estimate(est, low, high, half_width=iv.half_width, units=units, geomean=geo, sides=sides,
+                             direction=direction)
+    time = settings.get("time", {})
+    season = (str(time.get("start", "")), str(time.get("end", "")))
+    label = _frame_label(manifest)
+    text = statement(statistic=statistic, parameter=survey.get("parameter", ""), frame_label=label, season=season,
+                     figure=figure, confidence=confidence, bound=bound, sides=sides, direction=direction)
+    dtext = decision_statement(decision, criterion=criterion, confidence=confidence, statistic=statistic,
+                               sides=sides, units=units, direction=direction)
+    cens = sum(s.censored_left for s in strata), sum(s.censored_right for s in strata)
+    if cens[0]:
+        notes.append(f"{cens[0]} result(s) below a detection limit enter at the limit, which can only raise the "
+                     "estimate: a 'below' decision stays sound, an 'above' decision may be an artefact of the limit")
+    if cens[1]:
+        notes.append(f"{cens[1]} result(s) above the method's upper limit enter at the limit, which can only lower "
+                     "the estimate: an 'above' decision stays sound, a 'below' decision may be an artefact of the limit")
+    if geo:
+        notes.append("the geometric mean is computed on log10 values; tolerance, range and sds are in log10 units")
+    # next round
+    realloc = None
+    try:
+        realloc = reallocate([s.name for s in strata], [s.weight for s in strata], [p.sd for p in per],
+                             settings=settings, manifest=manifest, bound=bound)
+    except ImportError:
+        notes.append("reallocation unavailable: geosample.stats.sizing is not installed")
+    alloc = manifest.get("allocation") or {}
+    return Assessment(
+        statistic=statistic, parameter=survey.get("parameter", ""), units=units, frame_label=label, season=season,
+        estimate=float(est), low=None if low is None else float(low), high=None if high is None else float(high),
+        interval=iv, confidence=confidence, bound=bound, planned_bound=planned, sides=sides, direction=direction,
+        criterion=criterion, n=int(sum(s.y.size for s in strata)), n_planned=alloc.get("total"),
+        decision=decision, statement=text, decision_text=dtext, assumption=BOUND_ASSUMPTIONS[bound],
+        strata=tuple(per), adjust=adjust, sequential=seq, next_allocation=realloc,
+        flags=tuple(getattr(results, "flags", ())), notes=tuple(notes), range_void=range_void,
+    )

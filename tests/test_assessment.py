@@ -1,0 +1,123 @@
+"""``assess`` on fake results (geosample/stats/assessment.py).
+
+External checks: Cochran 1977 ch. 5 by hand, the betting bets written out from the paper's
+definitions, adjusted p-values against the decisions module, simulated coverage (3 Monte Carlo
+standard errors).
+"""
+from __future__ import annotations
+
+import math
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from geosample.errors import ResultsError
+from geosample.stats.assessment import assess
+from geosample.stats.decisions import adjust_pvalues
+
+sys.path.insert(0, str(Path(__file__).parent))
+
+from fixtures_assess import at_least_nominal as _at_least_nominal  # noqa: E402
+from fixtures_assess import fake_manifest, fake_results  # noqa: E402
+
+
+def test_assess_stratified_chebyshev_by_hand():
+    vals = {"North basin": [40, 55, 62, 38, 71, 49], "South basin": [88, 95, 102, 79], "Reed bay": [120, 131, 115]}
+    a = assess(fake_results(vals), fake_manifest(range=200, criterion=126))
+    est = 0.5 * np.mean(vals["North basin"]) + 0.3 * np.mean(vals["South basin"]) + 0.2 * np.mean(vals["Reed bay"])
+    d = math.sqrt((0.25 * 100**2 / 6 + 0.09 * 100**2 / 4 + 0.04 * 100**2 / 3) / 0.05)  # Cochran ch. 5, by hand
+    assert a.estimate == pytest.approx(est)
+    # the lower end is cut at 0 (a mean of counts is not negative); the upper end is not cut
+    assert (a.low, a.high) == (pytest.approx(max(0, est - d)), pytest.approx(est + d))
+    assert [s.name for s in a.strata] == list(vals)  # every stratum listed
+    assert a.decision == "not established"
+    assert a.strata[0].sd == pytest.approx(np.std(vals["North basin"], ddof=1))
+
+
+def test_assess_geomean_reports_back_on_the_original_scale():
+    vals = {"North basin": [10, 100, 1000, 100], "South basin": [50, 20, 80, 40]}
+    m = fake_manifest(strata=(("North basin", 0.6), ("South basin", 0.4)), statistic="geomean", range=4,
+                      tolerance=0.3, bound="t", extra_size="sd = 0.5")
+    a = assess(fake_results(vals), m)
+    logm = 0.6 * np.mean(np.log10(vals["North basin"])) + 0.4 * np.mean(np.log10(vals["South basin"]))
+    assert a.estimate == pytest.approx(10**logm)
+    assert a.low * a.high == pytest.approx(a.estimate**2)  # symmetric on log10: a factor either way
+    assert "geometric mean" in a.statement and "factor" in a.statement
+
+
+def test_results_outside_the_range_fall_back_to_t_and_say_so():
+    vals = {"North basin": [40, 55, 620, 38], "South basin": [88, 95, 102, 79], "Reed bay": [120, 131, 115]}
+    a = assess(fake_results(vals, range_exceeded=("North basin",)), fake_manifest(range=400, bound="hoeffding"))
+    assert a.bound == "t" and a.planned_bound == "hoeffding" and a.range_void
+    assert any("does not hold" in n for n in a.notes)
+    assert "approximate" in a.statement
+
+
+def test_stratum_without_results_is_an_error():
+    with pytest.raises(ResultsError, match="Reed bay"):
+        assess(fake_results({"North basin": [1, 2], "South basin": [3, 4], "Reed bay": []}), fake_manifest())
+
+
+def test_t_needs_two_results_per_stratum():
+    with pytest.raises(ResultsError, match="only 1 usable result"):
+        assess(fake_results({"North basin": [1, 2], "South basin": [3, 4], "Reed bay": [5]}),
+               fake_manifest(bound="t", extra_size="sd = 10"))
+
+
+def test_established_after_k_samples_with_betting():
+    rng = np.random.default_rng(14)
+    v = list(30 + 20 * rng.beta(2, 5, size=120))
+    m = fake_manifest(strata=(("Whole lake", 1.0),), range=200, bound="betting", criterion=126)
+    a = assess(fake_results({"Whole lake": v}), m)
+    assert a.decision == "below"
+    k = a.sequential.established_after
+    # independently, from the paper's definitions written out here: predictable plug-in bets
+    # lam_t = sqrt(2 ln(2/a) / (sigma2_{t-1} t ln(1+t))), truncated at c/(1-m), c = 1/2; the K- bettor's
+    # capital (weight 1/2) at m = criterion/L reaching 1/a rejects every mean >= the criterion
+    x, c01, alpha = np.array(v) / 200, 126 / 200, 0.05
+    t = np.arange(1, x.size + 1)
+    mu = (0.5 + np.cumsum(x)) / (t + 1)
+    sig2 = np.concatenate(([0.25], ((0.25 + np.cumsum((x - mu) ** 2)) / (t + 1))[:-1]))
+    lam = np.minimum(np.sqrt(2 * np.log(2 / alpha) / (sig2 * t * np.log(1 + t))), 0.5 / (1 - c01))
+    capital = 0.5 * np.cumprod(1 - lam * (x - c01))
+    assert k == int(np.argmax(capital >= 1 / alpha)) + 1
+    short = assess(fake_results({"Whole lake": v[: max(1, k - 1)]}), m)
+    assert short.decision == "not established" and short.sequential.more_needed >= 1
+    assert "estimate" in short.sequential.note
+
+
+def test_stratified_betting_covers_at_least_nominally():
+    # union bound over strata at a / H (docs/methods.md); 200 replicates, 3 standard errors
+    rng = np.random.default_rng(15)
+    m = fake_manifest(range=100, bound="betting")
+    w = np.array([0.5, 0.3, 0.2])
+    mus = np.array([0.2, 0.5, 0.7])  # beta means on [0, 1]
+    true = float(w @ (100 * mus))
+    hits, reps = 0, 200
+    for _ in range(reps):
+        vals = {name: list(100 * rng.beta(4 * mu, 4 * (1 - mu), size=n))
+                for name, mu, n in zip(("North basin", "South basin", "Reed bay"), mus, (12, 8, 6))}
+        a = assess(fake_results(vals), m)
+        hits += a.low <= true <= a.high
+    assert _at_least_nominal(hits / reps, 0.95, reps), f"stratified betting coverage {hits / reps:.3f}"
+
+
+def test_per_stratum_pvalues_are_adjusted_and_all_listed():
+    vals = {"North basin": [20, 25, 22, 24, 21, 23] * 6, "South basin": [120, 125, 130, 128] * 3,
+            "Reed bay": [190, 180, 185] * 12}
+    m = fake_manifest(range=200, bound="hoeffding")
+    a = assess(fake_results(vals), m, adjust="holm")
+    raw = [s.p_value for s in a.strata]
+    assert [s.p_adjusted for s in a.strata] == pytest.approx(list(adjust_pvalues(raw, "holm")))
+    assert len(a.strata) == 3
+    assert [s.decision for s in a.strata] == ["below", "not established", "above"]
+    bh = assess(fake_results(vals), m, adjust="bh")
+    assert [s.p_adjusted for s in bh.strata] == pytest.approx(list(adjust_pvalues(raw, "bh")))
+
+
+def test_bernstein_with_a_single_result_falls_back_to_chebyshev_and_says_so():
+    vals = {"North basin": [40, 55, 62], "South basin": [88, 95], "Reed bay": [120]}
+    a = assess(fake_results(vals), fake_manifest(range=200, bound="bernstein", extra_size="sd = 30"))
+    assert a.bound == "chebyshev" and any("Bernstein" in n for n in a.notes)
