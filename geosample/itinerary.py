@@ -162,29 +162,37 @@ def closed_tour(dist: np.ndarray) -> tuple[int, ...]:
 
 
 # --------------------------------------------------------------------------- distances
-def _euclidean(xy: np.ndarray) -> np.ndarray:
-    diff = xy[:, None, :] - xy[None, :, :]
-    return np.hypot(diff[..., 0], diff[..., 1])
+class _MatrixLegs:
+    """Legs from a router that offers only ``distance_matrix`` and ``path`` (the pinned minimal interface)."""
+
+    def __init__(self, router: Any, xy: np.ndarray):
+        self.points = xy
+        self.dist = np.asarray(router.distance_matrix(xy), dtype=float)
+        self._router = router
+
+    def path(self, i: int, j: int) -> list[tuple[float, float]]:
+        return list(self._router.path(tuple(map(float, self.points[i])), tuple(map(float, self.points[j]))))
 
 
-def _distances(router: Any, xy: np.ndarray) -> np.ndarray:
-    """Over-water distances from the router, or straight lines without one."""
+def _legs(router: Any, xy: np.ndarray) -> Any:
+    """Every leg among the points ``xy``: over water from one router search, or straight lines."""
+    from .router import StraightLegs
+
+    xy = np.asarray(xy, dtype=float).reshape(-1, 2)
     if router is None:
-        return _euclidean(xy)
-    d = np.asarray(router.distance_matrix(xy), dtype=float)
-    if d.shape != (len(xy), len(xy)):
-        raise ValueError(f"router.distance_matrix returned shape {d.shape}, expected {(len(xy),) * 2}")
-    return d
+        return StraightLegs(xy)
+    legs = router.legs(xy) if hasattr(router, "legs") else _MatrixLegs(router, xy)
+    if legs.dist.shape != (len(xy), len(xy)):
+        raise ValueError(f"the router's distance matrix has shape {legs.dist.shape}, expected {(len(xy),) * 2}")
+    return legs
 
 
-def _path(router: Any, xy: np.ndarray, nodes: Sequence[int]) -> tuple[tuple[float, float], ...]:
-    """The polyline through ``nodes`` in order: router paths joined, or straight lines."""
-    out: list[tuple[float, float]] = [(float(xy[nodes[0], 0]), float(xy[nodes[0], 1]))]
+def _path(legs: Any, idx: Sequence[int], nodes: Sequence[int]) -> tuple[tuple[float, float], ...]:
+    """The polyline through ``nodes`` (rows of a day's matrix; ``idx`` maps them to ``legs``), leg by leg."""
+    first = legs.points[idx[nodes[0]]]
+    out: list[tuple[float, float]] = [(float(first[0]), float(first[1]))]
     for a, b in zip(nodes[:-1], nodes[1:]):
-        if router is None or a == b:
-            seg = [tuple(xy[a]), tuple(xy[b])]
-        else:
-            seg = list(router.path(tuple(map(float, xy[a])), tuple(map(float, xy[b]))))
+        seg = legs.path(idx[a], idx[b])
         out.extend((float(p[0]), float(p[1])) for p in seg[1:])
     return tuple(out)
 
@@ -277,6 +285,8 @@ class _DayPlan:
     trips: tuple[_Trip, ...]
     start: dt.datetime
     candidates: int
+    legs: Any = None  # the day's legs (one router search); ``dist`` is ``legs.dist`` at rows ``idx``
+    idx: tuple[int, ...] = ()
 
 
 def _depot_first(day_visits: Sequence[Visit]) -> list[Visit]:
@@ -290,14 +300,16 @@ def _depot_first(day_visits: Sequence[Visit]) -> list[Visit]:
 
 
 def _choose_access(
-    access: Sequence[AccessPoint], sites_xy: np.ndarray, router: Any
-) -> tuple[AccessPoint, np.ndarray, tuple[int, ...], int]:
-    """The access point with the shortest closed tour; its matrix and tour."""
-    acc_xy = np.array([[a.x, a.y] for a in access], dtype=float)
-    k = len(sites_xy)
-    allxy = np.vstack([acc_xy, sites_xy])
-    full = _distances(router, allxy)
+    access: Sequence[AccessPoint], full: np.ndarray, sites: Sequence[int]
+) -> tuple[int, np.ndarray, tuple[int, ...], int]:
+    """The access point with the shortest closed tour over ``sites``; its index, matrix and tour.
+
+    ``full`` holds the distances among the access points (rows 0..m-1) and the day's sites after them;
+    ``sites`` are the rows of this part's sites.
+    """
     m = len(access)
+    k = len(sites)
+    full = full[np.ix_(np.r_[np.arange(m), sites], np.r_[np.arange(m), sites])]
     to_sites = full[:m, m:]
     reachable = np.all(np.isfinite(to_sites), axis=1)
     if not reachable.any():
@@ -318,25 +330,32 @@ def _choose_access(
             best = (length, i, d, tour)
     assert best is not None
     _, i, d, tour = best
-    return access[i], d, tour, len(cand)
+    return i, d, tour, len(cand)
 
 
 def _plan_day(
     day_index: int, day: FieldDay, day_visits: Sequence[Visit], frame: Frame, *,
     m_per_min: float, on_site: float, lab_minutes: float, limit_min: float,
     reverse: bool, u_start: float, max_day_minutes: float | None,
+    legs: Any = None, rows: Sequence[int] = (),
 ) -> _DayPlan:
-    router = frame.router
+    """One (part of a) day. With access points, ``legs`` holds the day's legs among the access
+    points and all the day's sites (in that order) and ``rows`` the rows of this part's sites."""
     if frame.access:
-        sites_xy = np.array([[v.x, v.y] for v in day_visits], dtype=float)
-        acc, dist, tour, ncand = _choose_access(frame.access, sites_xy, router)
-        xy = np.vstack([[acc.x, acc.y], sites_xy])
+        m = len(frame.access)
+        sites = [m + r for r in rows]
+        i, dist, tour, ncand = _choose_access(frame.access, legs.dist, sites)
+        acc = frame.access[i]
+        idx = (i, *sites)
+        xy = legs.points[list(idx)]
         ids = ("",) + tuple(v.site_id for v in day_visits)
         samples_depot = False
     else:
         ordered = _depot_first(day_visits)
         xy = np.array([[v.x, v.y] for v in ordered], dtype=float)
-        dist = _distances(router, xy)
+        legs = _legs(frame.router, xy)
+        idx = tuple(range(len(xy)))
+        dist = legs.dist
         if not np.all(np.isfinite(dist)):
             raise InfeasibleError(
                 f"on {day.date} some of the day's sites cannot be reached from one another over water; "
@@ -387,7 +406,7 @@ def _plan_day(
         start = day.window_start + dt.timedelta(minutes=u_start * (window - span))
     else:
         start = first + dt.timedelta(minutes=math.floor(u_start * (math.floor(slack + 1e-9) + 1)))
-    return _DayPlan(day_index, acc, xy, ids, dist, tuple(trips), start, ncand)
+    return _DayPlan(day_index, acc, xy, ids, dist, tuple(trips), start, ncand, legs, idx)
 
 
 def _time_day(
@@ -558,7 +577,9 @@ def build_itinerary(
         if not 0 <= day_index < len(schedule.days):
             raise ValueError(f"visit day_index {day_index} is outside Schedule.days (0..{len(schedule.days) - 1})")
         day = schedule.days[day_index]
-        groups = _water_groups(by_day[day_index], frame)
+        day_visits = by_day[day_index]
+        legs = _day_legs(day_visits, frame)
+        groups = _water_groups(day_visits, frame, legs)
         if len(groups) > 1:
             warnings.append(
                 f"On {day.date} the sites lie on {len(groups)} separate water bodies: the day is planned as "
@@ -567,11 +588,12 @@ def build_itinerary(
             )
         order = 0
         t_i = 0
+        row_of = {v.site_id: r for r, v in enumerate(day_visits)}
         for g_visits, g_day in zip(groups, _split_window(day, [len(g) for g in groups])):
             plan = _plan_day(
                 day_index, g_day, g_visits, frame, m_per_min=m_per_min, on_site=minutes_on_site,
                 lab_minutes=lab_minutes, limit_min=limit_min, reverse=reverse, u_start=u_start,
-                max_day_minutes=max_day_minutes,
+                max_day_minutes=max_day_minutes, legs=legs, rows=[row_of[v.site_id] for v in g_visits],
             )
             order, t_i = _collect_day(plan, day, frame, order, t_i, updates, marginal, routes, stratum_of,
                                       to_lonlat, limit_min, lab_minutes, speed_kmh, m_per_min, warnings)
@@ -608,7 +630,7 @@ def _route(
     ids: tuple[str, ...], limit_min: float, lab_minutes: float, speed_kmh: float, warnings: list[str],
 ) -> Route:
     nodes = ((0,) if not trip.samples_depot else ()) + trip.nodes + (0,)
-    xy_path = _path(frame.router, plan.xy, nodes)
+    xy_path = _path(plan.legs, plan.idx, nodes)
     lon, lat = to_lonlat.transform([p[0] for p in xy_path], [p[1] for p in xy_path])
     ok = trip.holding_min <= limit_min + 1e-9
     n_trips = len(plan.trips)
@@ -673,7 +695,17 @@ def _collect_day(plan, day, frame, order, t_i, updates, marginal, routes, stratu
     return order, t_i
 
 
-def _water_groups(day_visits: Sequence[Visit], frame: Frame) -> list[list[Visit]]:
+def _day_legs(day_visits: Sequence[Visit], frame: Frame) -> Any:
+    """With access points: the legs among every access point and the day's sites (in that order),
+    from one router search; used for grouping, choosing the access point, timing and drawing."""
+    if not frame.access:
+        return None
+    acc_xy = np.array([[a.x, a.y] for a in frame.access], dtype=float)
+    sites_xy = np.array([[v.x, v.y] for v in day_visits], dtype=float)
+    return _legs(frame.router, np.vstack([acc_xy, sites_xy]))
+
+
+def _water_groups(day_visits: Sequence[Visit], frame: Frame, legs: Any) -> list[list[Visit]]:
     """The day's visits in one group, or one group per access point when no access point reaches them all.
 
     A regional frame can hold several separate lakes, each with its own launch: a day whose
@@ -682,11 +714,8 @@ def _water_groups(day_visits: Sequence[Visit], frame: Frame) -> list[list[Visit]
     """
     if not frame.access or frame.router is None or len(day_visits) < 2:
         return [list(day_visits)]
-    acc_xy = np.array([[a.x, a.y] for a in frame.access], dtype=float)
-    sites_xy = np.array([[v.x, v.y] for v in day_visits], dtype=float)
-    full = _distances(frame.router, np.vstack([acc_xy, sites_xy]))
     m = len(frame.access)
-    to_sites = full[:m, m:]
+    to_sites = legs.dist[:m, m:]
     if np.all(np.isfinite(to_sites), axis=1).any() or not np.all(np.isfinite(to_sites).any(axis=0)):
         return [list(day_visits)]  # one access point reaches all, or some site none (reported by _plan_day)
     nearest = np.argmin(np.where(np.isfinite(to_sites), to_sites, np.inf), axis=0)

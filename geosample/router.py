@@ -18,7 +18,7 @@ import numpy as np
 from .errors import InfeasibleError, LayerError
 from .shapes import polygonal as _polygonal
 
-__all__ = ["WaterRouter", "GRID_RELATIVE_ERROR"]
+__all__ = ["WaterRouter", "Legs", "StraightLegs", "GRID_RELATIVE_ERROR"]
 
 _SQRT2 = math.sqrt(2.0)
 GRID_RELATIVE_ERROR = 1.0 / math.cos(math.atan(0.5) / 2.0) - 1.0
@@ -297,62 +297,52 @@ class WaterRouter:
         xy = np.vstack([self._nodes, src]) if n else src
         return xy, d, src
 
-    def distance_matrix(self, xy: Any) -> np.ndarray:
-        """Over-water distances in metres between the points ``xy`` (a ``(k, 2)`` array in the frame CRS).
+    def legs(self, xy: Any) -> "Legs":
+        """Every over-water leg between the points ``xy`` from one search.
 
-        Symmetric, zero diagonal, ``inf`` between points in waters that do not connect.
+        One query graph and one multi-source Dijkstra search (from every point) give
+        the distance matrix and the predecessor tree of each point, so
+        :meth:`Legs.path` draws exactly the path whose length the matrix holds.
         Points on land or near the shore are first moved to the nearest routable
-        water; the move is added to their distances.
+        water; the move is part of their legs.
         """
         from scipy.sparse.csgraph import dijkstra
 
         pts = np.asarray(xy, dtype=float).reshape(-1, 2)
         k = len(pts)
+        n = self.n_nodes
         if k == 0:
-            return np.zeros((0, 0))
+            return Legs(pts, np.zeros((0, 0)), np.zeros((0, 0), dtype=np.int32), pts, np.zeros((0, 2)), n)
         q, moved = self._snap(pts)
         g = self._query_graph(q)
-        n = self.n_nodes
-        d = dijkstra(g, directed=False, indices=np.arange(n, n + k))[:, n:]
-        d = d + moved[:, None] + moved[None, :]
-        d = np.minimum(d, d.T)
+        dist, pred = dijkstra(g, directed=False, indices=np.arange(n, n + k), return_predecessors=True)
+        d = dist[:, n:] + moved[:, None] + moved[None, :]
         np.fill_diagonal(d, 0.0)
         same = np.all(pts[:, None, :] == pts[None, :, :], axis=2)
         d[same] = 0.0
-        return d
+        nodes = np.vstack([self._nodes, q]) if n else q
+        return Legs(pts, d, pred, q, nodes, n)
+
+    def distance_matrix(self, xy: Any) -> np.ndarray:
+        """Over-water distances in metres between the points ``xy`` (a ``(k, 2)`` array in the frame CRS).
+
+        Symmetric, zero diagonal, ``inf`` between points in waters that do not connect.
+        Points on land or near the shore are first moved to the nearest routable
+        water; the move is added to their distances. Same as ``legs(xy).dist``.
+        """
+        return self.legs(xy).dist
 
     def path(self, a: Any, b: Any) -> list[tuple[float, float]]:
         """The over-water polyline from ``a`` to ``b`` as ``(x, y)`` tuples, first ``a``, last ``b``.
+
+        For many legs among the same points use :meth:`legs` (one search for all).
 
         Raises
         ------
         InfeasibleError
             When ``a`` and ``b`` are in waters that do not connect.
         """
-        from scipy.sparse.csgraph import dijkstra
-
-        pts = np.asarray([a, b], dtype=float).reshape(2, 2)
-        q, moved = self._snap(pts)
-        g = self._query_graph(q)
-        n = self.n_nodes
-        dist, pred = dijkstra(g, directed=False, indices=n, return_predecessors=True)
-        if not np.isfinite(dist[n + 1]):
-            raise InfeasibleError(f"no over-water path joins ({pts[0, 0]:.1f}, {pts[0, 1]:.1f}) and "
-                                  f"({pts[1, 0]:.1f}, {pts[1, 1]:.1f}): they lie in waters that do not connect")
-        allxy = np.vstack([self._nodes, q]) if n else q
-        chain = [n + 1]
-        while chain[-1] != n:
-            chain.append(int(pred[chain[-1]]))
-        chain.reverse()
-        out = [tuple(map(float, pts[0]))]
-        for c in chain:
-            p = tuple(map(float, allxy[c]))
-            if p != out[-1]:
-                out.append(p)
-        end = tuple(map(float, pts[1]))
-        if out[-1] != end:
-            out.append(end)
-        return out
+        return self.legs(np.asarray([a, b], dtype=float).reshape(2, 2)).path(0, 1)
 
     # ------------------------------------------------------------------ reach zone
     def reach_zone(self, sources: Any, reach_m: float, *, resolution_m: float | None = None,
@@ -501,3 +491,68 @@ def _cells_to_polygon(mask: np.ndarray, x0: float, y0: float, cell: float) -> An
 
 
 # =========================================================================== constraints
+
+
+class Legs:
+    """The legs among ``k`` points found by one search (:meth:`WaterRouter.legs`).
+
+    Attributes
+    ----------
+    points : (k, 2) array
+        The points as given.
+    dist : (k, k) array
+        Over-water distances in metres (snap moves included; ``inf`` where waters do not connect).
+    """
+
+    def __init__(self, points: np.ndarray, dist: np.ndarray, pred: np.ndarray, snapped: np.ndarray,
+                 nodes: np.ndarray, n_graph: int):
+        self.points = points
+        self.dist = dist
+        self._pred = pred
+        self._snapped = snapped
+        self._nodes = nodes
+        self._n = n_graph
+
+    def __len__(self) -> int:
+        return len(self.points)
+
+    def path(self, i: int, j: int) -> list[tuple[float, float]]:
+        """The polyline of the leg from point ``i`` to point ``j``; its length is ``dist[i, j]``.
+
+        Raises
+        ------
+        InfeasibleError
+            When the two points lie in waters that do not connect.
+        """
+        a, b = self.points[i], self.points[j]
+        if i == j or self.dist[i, j] == 0.0:
+            return [tuple(map(float, a)), tuple(map(float, b))]
+        if not np.isfinite(self.dist[i, j]):
+            raise InfeasibleError(f"no over-water path joins ({a[0]:.1f}, {a[1]:.1f}) and "
+                                  f"({b[0]:.1f}, {b[1]:.1f}): they lie in waters that do not connect")
+        n, pred = self._n, self._pred[i]
+        chain = [n + j]
+        while chain[-1] != n + i:
+            chain.append(int(pred[chain[-1]]))
+        chain.reverse()
+        out = [tuple(map(float, a))]
+        for c in chain:
+            p = tuple(map(float, self._nodes[c]))
+            if p != out[-1]:
+                out.append(p)
+        end = tuple(map(float, b))
+        if out[-1] != end:
+            out.append(end)
+        return out
+
+
+class StraightLegs(Legs):
+    """Straight-line legs, for a frame without a router."""
+
+    def __init__(self, points: Any):
+        pts = np.asarray(points, dtype=float).reshape(-1, 2)
+        diff = pts[:, None, :] - pts[None, :, :]
+        super().__init__(pts, np.hypot(diff[..., 0], diff[..., 1]), np.zeros((0, 0), dtype=np.int32), pts, pts, 0)
+
+    def path(self, i: int, j: int) -> list[tuple[float, float]]:
+        return [tuple(map(float, self.points[i])), tuple(map(float, self.points[j]))]

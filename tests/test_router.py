@@ -1,0 +1,73 @@
+"""Legs over water from one search (router.WaterRouter.legs) and the day routes drawn from them.
+
+Outside references: shapely (LineString.length, Polygon.covers) measures and checks every
+drawn path independently of the router's raster; the way round a round island is plane
+geometry worked by hand in tests/test_geometry.py.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import shapely
+
+from geosample.design import load_layers, make_design
+from geosample.plan import load_plan
+from geosample.router import StraightLegs, WaterRouter
+from geosample.workflow import copy_demo
+
+X0, Y0 = 610000.0, 5100000.0
+
+
+def two_island_lake():
+    lake = shapely.box(X0, Y0, X0 + 4000, Y0 + 3000)
+    for cx, cy, r in ((1200, 1500, 450), (2800, 1400, 500)):
+        lake = lake.difference(shapely.Point(X0 + cx, Y0 + cy).buffer(r, quad_segs=32))
+    return lake
+
+
+def test_legs_matrix_equals_the_pairwise_matrix_and_each_path_has_its_length():
+    lake = two_island_lake()
+    router = WaterRouter(lake)
+    rng = np.random.default_rng(7)
+    pts = []
+    while len(pts) < 12:
+        p = rng.uniform([X0, Y0], [X0 + 4000, Y0 + 3000])
+        if lake.contains(shapely.Point(p)):
+            pts.append(p)
+    pts = np.array(pts)
+    legs = router.legs(pts)
+    assert legs.dist.shape == (12, 12)
+    np.testing.assert_allclose(legs.dist, legs.dist.T, rtol=1e-12)
+    for i in range(12):
+        for j in range(12):
+            if i == j:
+                continue
+            path = legs.path(i, j)
+            line = shapely.LineString(path)
+            # the drawn leg is the leg the timetable measured (shapely measures it)
+            assert line.length == pytest.approx(legs.dist[i, j], rel=1e-9)
+            assert path[0] == tuple(pts[i]) and path[-1] == tuple(pts[j])
+            assert lake.buffer(0.5).covers(line)
+    # a pair looked up alone gives the same distance
+    pair = router.distance_matrix(pts[[0, 5]])
+    assert pair[0, 1] == pytest.approx(legs.dist[0, 5], rel=1e-9)
+
+
+def test_straight_legs_are_euclidean():
+    legs = StraightLegs([[0.0, 0.0], [3.0, 4.0]])
+    assert legs.dist[0, 1] == 5.0 and legs.path(0, 1) == [(0.0, 0.0), (3.0, 4.0)]
+
+
+def test_demo_routes_drawn_are_as_long_as_the_timetable_says(tmp_path):
+    """The demo lake has two islands: every drawn route has the length the planned times used,
+    and lies on the water (shapely, a few metres' tolerance for the snap to the routable water)."""
+    folder = copy_demo(tmp_path / "demo")
+    plan = load_plan(folder)
+    layers = load_layers(plan)
+    design = make_design(plan, layers=layers)
+    assert design.schedule.routes
+    for r in design.schedule.routes:
+        line = shapely.LineString(r.coords_xy)
+        assert line.length == pytest.approx(r.length_m, rel=1e-9, abs=1e-6), r.date
+    wet = design.frame.water.buffer(25.0)
+    assert all(wet.covers(shapely.LineString(r.coords_xy)) for r in design.schedule.routes)
