@@ -227,6 +227,12 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "holding_h": Key(_positive, "a positive number of hours", 6.0, help="Most hours from collection to the lab."),
         "lab_minutes": Key(_nonneg, "a number of minutes >= 0", 40.0, help="Travel time from access point to lab."),
     },
+    "export": {
+        "gpx_symbols": Key(_choice(("geosample", "none")), '"geosample" or "none"', "geosample",
+                           help='Waypoint symbols in the GPX files: "geosample" writes the neutral names '
+                                '"Sample site", "Reserve site" and "Access point" (a GPS that does not know a name '
+                                'shows its default mark); "none" writes no symbol.'),
+    },
 }
 
 STRATUM_KEYS: dict[str, Key] = {

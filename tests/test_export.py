@@ -73,7 +73,7 @@ def test_gpx_parses_with_gpxpy_and_holds_every_site_and_one_route_per_trip(packa
     assert wpt["NB-002"].latitude == pytest.approx(lat, abs=1e-6)
     assert wpt["NB-002"].longitude == pytest.approx(lon, abs=1e-6)
     assert "North basin" in wpt["NB-002"].description and "2027-06-14 09:40" in wpt["NB-002"].description
-    assert "reserve 2" in wpt["NB-005"].description
+    assert "reserve NB-R2 (rank 2;" in wpt["NB-005"].description
 
 
 def test_gpx_parses_with_pyogrio_layers(package):
@@ -93,6 +93,54 @@ def test_gpx_a_split_day_gives_one_route_per_trip(tmp_path):
     assert [r.name for r in g.routes] == ["Day 1 2027-06-14", "Day 2 2027-06-16 trip 1", "Day 2 2027-06-16 trip 2"]
     assert [len(r.points) for r in g.routes] == [5, 4, 3]  # launch + sites + launch
     assert len(pyogrio.read_dataframe(tmp_path / "s.gpx", layer="routes")) == 3
+
+
+def _with_bend(design):
+    """The first route with one bend added between the launch and its first stop (as a router's path has)."""
+    r = design.schedule.routes[0]
+    bend = (LAUNCH_XY[0] + 300.0, LAUNCH_XY[1] + 900.0)
+    xy = (r.coords_xy[0], bend) + r.coords_xy[1:]
+    ll = tuple(REF.transform(*p) for p in xy)
+    r2 = dataclasses.replace(r, coords_xy=xy, coords_lonlat=ll)
+    sched = dataclasses.replace(design.schedule, routes=(r2,) + design.schedule.routes[1:])
+    return dataclasses.replace(design, schedule=sched), bend
+
+
+def test_gpx_routes_and_tracks_follow_the_path_with_planned_times_in_utc(tmp_path):
+    d, bend = _with_bend(build_design())
+    write_gpx(d, tmp_path / "s.gpx")
+    g = gpxpy.parse((tmp_path / "s.gpx").read_text(encoding="utf-8"))
+    rte, trk = g.routes[0], g.tracks[0]
+    # every vertex of the over-water path is a route point and a track point, in order
+    path = [(round(lat, 6), round(lon, 6)) for lon, lat in d.schedule.routes[0].coords_lonlat]
+    assert [(round(p.latitude, 6), round(p.longitude, 6)) for p in rte.points] == path
+    assert [(round(p.latitude, 6), round(p.longitude, 6)) for p in trk.segments[0].points] == path
+    lon_b, lat_b = REF.transform(*bend)
+    via = rte.points[1]
+    assert via.name is None and via.type == "via"
+    assert via.latitude == pytest.approx(lat_b, abs=1e-6) and via.longitude == pytest.approx(lon_b, abs=1e-6)
+    # planned times: 09:05 America/Chicago (CDT, UTC-5) is 14:05 UTC (GPX 1.1 schema: times in UTC)
+    stop = next(p for p in rte.points if p.name == "NB-001")
+    assert stop.time == dt.datetime(2027, 6, 14, 14, 5, tzinfo=dt.timezone.utc)
+    assert "<time>2027-06-14T14:05:00Z</time>" in (tmp_path / "s.gpx").read_text(encoding="utf-8")
+    wpt = {w.name: w for w in g.waypoints}
+    assert wpt["NB-001"].time == dt.datetime(2027, 6, 14, 14, 5, tzinfo=dt.timezone.utc)
+    assert wpt["NB-004"].time is None  # reserves have no planned time
+    assert rte.points[0].time == dt.datetime(2027, 6, 14, 13, 40, tzinfo=dt.timezone.utc)  # leave 08:40 CDT
+    assert {name for name, _ in pyogrio.list_layers(tmp_path / "s.gpx")} >= {"routes", "tracks", "route_points"}
+
+
+@pytest.mark.parametrize("choice", ["geosample", "none"])
+def test_gpx_symbols_are_the_projects_own_or_none(tmp_path, choice):
+    d = build_design()
+    d = dataclasses.replace(d, settings={**d.settings, "export": {"gpx_symbols": choice}})
+    write_gpx(d, tmp_path / "s.gpx")
+    text = (tmp_path / "s.gpx").read_text(encoding="utf-8")
+    syms = set(re.findall(r"<sym>([^<]*)</sym>", text))
+    if choice == "none":
+        assert syms == set()
+    else:
+        assert syms == {"Sample site", "Reserve site", "Access point"}
 
 
 # --------------------------------------------------------------------------- CSV

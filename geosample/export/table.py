@@ -45,6 +45,7 @@ __all__ = [
     "day_numbers",
     "format_time",
     "neutralise_formula",
+    "reserve_label",
 ]
 
 FILE_NAME = "schedule.csv"
@@ -75,6 +76,22 @@ def neutralise_formula(text: str) -> str:
     'North basin'
     """
     return "'" + text if text.startswith(_FORMULA_START) else text
+
+
+def reserve_label(code: str, rank: int) -> str:
+    """The label a reserve goes by on the map and the sheets: stratum code and rank (``"NB-R2"``).
+
+    Unique in the design (stratum codes are unique); empty for a primary (rank 0).
+
+    Examples
+    --------
+    >>> reserve_label("NB", 2), reserve_label("NB", 0)
+    ('NB-R2', '')
+    """
+    rank = int(rank)
+    if rank <= 0:
+        return ""
+    return f"{code}-R{rank}" if code else f"R{rank}"
 
 
 def format_time(t: dt.datetime | None) -> str:
