@@ -119,6 +119,8 @@ def manifest_data(design: Design, folder: Path, *, final_folder: Path | None = N
         "seed": str(design.seed),
         "seed_source": design.seed_source,
         "draw_count": design.draw_count,
+        "registration": design.registration,
+        "history": design.history,
         "crs": {
             "name": crs.name,
             "epsg": epsg,
@@ -266,7 +268,8 @@ def verify(folder: str | Path, *, progress: Any = None) -> Verification:
                          draw_count=int(manifest.get("draw_count", 1)),
                          inputs={k: {"path": v.get("as_written", v["path"]), "sha256": v["sha256"]}
                                  for k, v in inputs.items()},
-                         progress=progress)
+                         progress=progress, registration=manifest.get("registration"),
+                         history=manifest.get("history"))
     expected = schedule_rows(design)
     sched = folder / "schedule.csv"
     if sched.exists():

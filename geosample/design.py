@@ -227,6 +227,8 @@ def make_design(
     draw_count: int = 1,
     inputs: dict | None = None,
     progress: Progress | None = None,
+    registration: dict | None = None,
+    history: dict | None = None,
 ) -> Design:
     """Run every stage of the design.
 
@@ -243,6 +245,9 @@ def make_design(
         How many draws the draw record holds for this plan (for the report).
     progress : callable, optional
         Called with the name of each step as it starts.
+    registration, history : dict, optional
+        The manifest's ``registration`` and ``history`` entries, carried into the
+        design for the report and the manifest (``verify`` passes them back).
 
     Returns
     -------
@@ -256,7 +261,8 @@ def make_design(
     settings = {k: dict(v) for k, v in plan.settings.items()}
     if seed is None:
         seed, seed_source = resolve_seed(settings)
-    settings["draw"]["seed"] = int(seed) if seed_source != "text" else None
+    # A seed from a text or a registration is recorded as seed_used; the plan's own seed stays empty.
+    settings["draw"]["seed"] = int(seed) if seed_source not in ("text", "registered") else None
     settings["draw"]["seed_used"] = str(seed)
     settings["draw"]["seed_source"] = seed_source or "given"
 
@@ -306,4 +312,6 @@ def make_design(
         seed_source=seed_source or "given",
         draw_count=draw_count,
         inputs=dict(inputs or {}),
+        registration=registration,
+        history=history,
     )

@@ -25,6 +25,7 @@ __all__ = [
     "InfeasibleError",
     "ResultsError",
     "OutputExistsError",
+    "RegistrationError",
 ]
 
 
@@ -82,3 +83,7 @@ class ResultsError(GeosampleError, ValueError):
 
 class OutputExistsError(GeosampleError, FileExistsError):
     """An output file or folder exists and ``--overwrite`` was not given."""
+
+
+class RegistrationError(GeosampleError, ValueError):
+    """A registration file is unreadable, or a draw does not match its registration."""

@@ -318,6 +318,13 @@ class Design:
         How many draws the draw record holds for this plan (this one included).
     inputs : dict
         Input file label -> {"path": relative path, "sha256": hex}.
+    registration : dict or None
+        For a registered draw, the manifest's ``registration`` entry (registration
+        SHA-256, public source, date and value: :func:`geosample.registration.manifest_entry`);
+        None for an unregistered draw.
+    history : dict or None
+        The manifest's ``history`` entry (content key, number of draws:
+        :func:`geosample.history.manifest_entry`); None when no history was kept.
     """
 
     settings: dict
@@ -330,6 +337,8 @@ class Design:
     seed_source: str
     draw_count: int = 1
     inputs: dict = field(default_factory=dict)
+    registration: dict | None = None
+    history: dict | None = None
 
     @property
     def survey(self) -> dict:

@@ -3,14 +3,15 @@
 These are the edges: they read the plan and layers, call :func:`make_design`,
 write the field package and the manifest into a temporary folder next to the
 output, and rename it into place only when everything succeeded, so a failure
-leaves nothing half-written. Every plan run appends a line to the plan's draw
-record (``<plan>.draws.csv`` next to the plan file), so that re-drawing until
-the sites look convenient shows in the manifest and the report.
+leaves nothing half-written. Every plan run is added to the plan's draw history
+(:mod:`geosample.history`: keyed by the plan's content, kept in the package's
+``draws.csv``, a per-user store and ``<plan>.draws.csv`` beside the plan), so
+that re-drawing until the sites look convenient shows in the manifest and the report.
 """
 from __future__ import annotations
 
 import csv
-import datetime as dt
+import hashlib
 import logging
 import shutil
 import tempfile
@@ -25,9 +26,6 @@ from .model import Design
 __all__ = ["run_plan", "run_demo", "PlanRun", "draw_record_path", "count_draws", "copy_demo"]
 
 log = logging.getLogger(__name__)
-
-DRAW_RECORD_FIELDS = ("time_utc", "plan_sha256", "seed", "seed_source", "n_primary", "n_sites", "output")
-
 
 @dataclass(frozen=True)
 class PlanRun:
@@ -47,15 +45,6 @@ def count_draws(record: Path) -> int:
         return 0
     with open(record, newline="", encoding="utf-8") as fh:
         return sum(1 for _ in csv.DictReader(fh))
-
-
-def _append_draw(record: Path, row: dict) -> None:
-    new = not record.exists()
-    with open(record, "a", newline="", encoding="utf-8") as fh:
-        w = csv.DictWriter(fh, fieldnames=DRAW_RECORD_FIELDS, lineterminator="\n")
-        if new:
-            w.writeheader()
-        w.writerow(row)
 
 
 def check_output(out: Path, overwrite: bool) -> None:
@@ -86,7 +75,8 @@ def _swap_in(tmp: Path, out: Path) -> None:
 
 def run_plan(plan_path: str | Path, out: str | Path, *, overwrite: bool = False,
              progress: Callable[[str], None] | None = None, record: bool = True,
-             bundle_inputs: bool = False) -> PlanRun:
+             bundle_inputs: bool = False, registration: str | Path | None = None,
+             public_value: str | None = None) -> PlanRun:
     """Design from a plan file and write the field package and manifest into ``out``.
 
     Raises
@@ -98,56 +88,132 @@ def run_plan(plan_path: str | Path, out: str | Path, *, overwrite: bool = False,
 
     With ``bundle_inputs`` the plan and its layers are copied into ``out/inputs/``
     and the manifest points there, so the design folder alone can be verified.
+
+    With ``registration`` (a file written by ``geosample register``) and
+    ``public_value`` the seed is the registered one (:mod:`geosample.registration`);
+    the plan and its layers must be the registered ones and the public date must
+    have begun. The draw history (:mod:`geosample.history`) is read from every
+    place it is kept, written into ``out/draws.csv`` and, with ``record``, appended
+    to the per-user store and the record beside the plan, before ``out`` is swapped in.
     """
     from .audit import sha256_file, write_manifest
     from .design import load_layers, make_design, resolve_seed
     from .export import write_package
     from .plan import load_plan
 
+    from . import history
+    from . import registration as registry
+
     plan_path = Path(plan_path)
     out = Path(out)
     check_output(out, overwrite)
+    reg = _read_registration(registration, public_value)
     plan = load_plan(plan_path)
     for w in plan.warnings:
         log.warning(w)
-    layers = load_layers(plan)
+    layers = load_layers(plan)  # first: it names a missing or unreadable layer file
     locations = plan.input_paths()
     inputs = {label: {"path": plan.input_names()[label], "sha256": sha256_file(p)} for label, p in locations.items()}
-    seed, seed_source = resolve_seed(plan.settings)
+    input_sha = {label: info["sha256"] for label, info in inputs.items()}
+    if reg is not None:
+        registry.check_plan(reg, plan, input_sha, plan_path=plan_path)
+        seed, seed_source = registry.registered_seed(reg.sha256, public_value or ""), "registered"
+        reg_entry = registry.manifest_entry(reg, public_value or "")
+    else:
+        seed, seed_source = resolve_seed(plan.settings)
+        reg_entry = None
+    key = history.content_key(plan.settings, input_sha)
     rec = draw_record_path(plan.path) if plan.path else None
-    draws_before = count_draws(rec) if rec else 0
-    design = make_design(plan, layers=layers, seed=seed, seed_source=seed_source, draw_count=draws_before + 1,
-                         inputs=inputs, progress=progress)
+    earlier = history.gather(key, plan.sha256, _history_sources(key, rec, plan.path, out)) if record else []
+    row = history.new_row(key=key, plan_sha256=plan.sha256, seed=seed, seed_source=seed_source,
+                          registration_sha256=reg.sha256 if reg else "", n_primary=0, n_sites=0, output=out.name)
+    rows = earlier + [row]
+    design = make_design(plan, layers=layers, seed=seed, seed_source=seed_source, draw_count=len(rows),
+                         inputs=inputs, progress=progress, registration=reg_entry,
+                         history=history.manifest_entry(key, rows))
+    row.update(n_primary=str(design.allocation.total), n_sites=str(len(design.draw.sites)))
     out.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".partial", dir=out.parent))
     try:
         if progress:
             progress("writing the field package")
         files = write_package(design, tmp)
+        files[history.FILE_NAME] = history.write_rows(rows, tmp / history.FILE_NAME)
+        if reg is not None:
+            files[registry.FILE_NAME] = _copy_registration(reg, tmp / registry.FILE_NAME)
         if bundle_inputs:
             locations = _bundle(locations, plan.path, tmp / "inputs", out / "inputs")
         write_manifest(design, tmp, final_folder=out, plan_path=plan.path, plan_sha256=plan.sha256,
                        outputs={name: p for name, p in files.items()}, input_locations=locations)
+        if record:  # the history is written before the new folder is swapped in
+            _record_draw(row, [history.store_path(key)] + ([rec] if rec else []))
         _swap_in(tmp, out)
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
     written = {name: out / Path(p).name for name, p in files.items()}
     written["manifest.json"] = out / "manifest.json"
-    if rec and record:
-        try:
-            _append_draw(rec, {
-                "time_utc": dt.datetime.now(dt.timezone.utc).replace(microsecond=0).isoformat(),
-                "plan_sha256": plan.sha256, "seed": str(design.seed), "seed_source": design.seed_source,
-                "n_primary": design.allocation.total, "n_sites": len(design.draw.sites), "output": str(out.resolve()),
-            })
-        except OSError as exc:
-            log.warning("could not append to the draw record %s (%s); this draw is not recorded there", rec,
-                        exc.strerror)
     # (the frame's warnings were logged by geometry as they arose)
     for w in tuple(design.draw.warnings) + tuple(design.schedule.warnings):
         log.warning(w)
     return PlanRun(design, out, written, rec)
+
+
+def _read_registration(path: str | Path | None, public_value: str | None):
+    """The registration to draw under (its public date checked), or None; refuses half of the pair."""
+    from . import registration as registry
+    from .errors import SettingError
+
+    if path is None and public_value is None:
+        return None
+    if path is None:
+        raise SettingError("--public-value", registry.printable(public_value), "a value given together with "
+                           "--registration", fix="add --registration REGISTRATION.json (the file 'geosample "
+                           "register' wrote), or leave out --public-value")
+    if public_value is None:
+        raise SettingError("--public-value", "(missing)", "the public value the registration names, as published",
+                           fix=f"add --public-value \"...\" with the value published by the source named in {path}")
+    registry.public_value(public_value)
+    reg = registry.read_registration(path)
+    registry.check_public_date(reg)
+    return reg
+
+
+def _copy_registration(reg, dest: Path) -> Path:
+    """Copy the registration's bytes into the package (refused if the file changed since it was read)."""
+    from .errors import RegistrationError
+
+    data = Path(reg.path).read_bytes()
+    if hashlib.sha256(data).hexdigest() != reg.sha256:
+        raise RegistrationError(f"registration file {str(reg.path)!r} changed while the design was being made. "
+                                "Fix: restore it and run again.")
+    dest.write_bytes(data)
+    return dest
+
+
+def _history_sources(key: str, rec: Path | None, plan_path: Path | None, out: Path) -> list[Path]:
+    """Every place this plan's draws may be recorded (see :mod:`geosample.history`)."""
+    from . import history
+
+    sources = [history.store_path(key)]
+    if rec:
+        sources.append(rec)
+    if out.is_dir():  # a re-draw into the same folder
+        sources.append(out / history.FILE_NAME)
+    if plan_path is not None and plan_path.parent.name == "inputs" and (plan_path.parent.parent / "manifest.json").is_file():
+        sources.append(plan_path.parent.parent / history.FILE_NAME)  # a design's bundled plan
+    return sources
+
+
+def _record_draw(row: dict, places: list[Path]) -> None:
+    from . import history
+
+    for place in places:
+        try:
+            history.append_row(place, row)
+        except OSError as exc:
+            log.warning("could not append to the draw history %s (%s); this draw is not recorded there (it is in "
+                        "the design's draws.csv)", place, exc.strerror)
 
 
 def _bundle(locations: dict[str, Path], plan_path: Path | None, dest: Path, final: Path) -> dict[str, Path]:

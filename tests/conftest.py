@@ -56,3 +56,17 @@ def square_lake() -> geopandas.GeoDataFrame:
     x0, y0 = 610000.0, 5100000.0
     return geopandas.GeoDataFrame({"name": ["Square Pond"]}, geometry=[shapely.box(x0, y0, x0 + 2000, y0 + 2000)],
                                   crs=32614)
+
+
+@pytest.fixture(autouse=True, scope="session")
+def _history_store(tmp_path_factory):
+    """Keep the per-user draw history of every test run out of the real user's data folder."""
+    import os
+
+    old = os.environ.get("GEOSAMPLE_HISTORY_DIR")
+    os.environ["GEOSAMPLE_HISTORY_DIR"] = str(tmp_path_factory.mktemp("draw-history"))
+    yield
+    if old is None:
+        os.environ.pop("GEOSAMPLE_HISTORY_DIR", None)
+    else:
+        os.environ["GEOSAMPLE_HISTORY_DIR"] = old

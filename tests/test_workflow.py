@@ -98,15 +98,28 @@ def test_verify_fails_on_an_edited_input(demo_inputs, tmp_path, capsys):
     assert "input water" in capsys.readouterr().err
 
 
-def test_same_plan_inputs_and_seed_give_identical_files(demo_inputs, tmp_path):
+def test_same_plan_inputs_and_seed_give_identical_files(demo_inputs, tmp_path, monkeypatch):
+    """Two first draws (two computers, each with its own draw history) give the same files.
+
+    Only the draw history differs: draws.csv holds the clock time and id of each draw, and the manifest
+    records its hash and the draw's id.
+    """
     a_in, b_in = tmp_path / "a" / "in", tmp_path / "b" / "in"
     shutil.copytree(demo_inputs.parent, a_in)
     shutil.copytree(demo_inputs.parent, b_in)
     for side in ("a", "b"):
+        (tmp_path / side / "in" / "plan.toml.draws.csv").unlink(missing_ok=True)
+        monkeypatch.setenv("GEOSAMPLE_HISTORY_DIR", str(tmp_path / side / "history"))
         assert main(["plan", str(tmp_path / side / "in" / "plan.toml"), "-o", str(tmp_path / side / "out"),
                      "-q"]) == 0
     for name in PACKAGE:
-        assert (tmp_path / "a" / "out" / name).read_bytes() == (tmp_path / "b" / "out" / name).read_bytes(), name
+        if name != "manifest.json":
+            assert (tmp_path / "a" / "out" / name).read_bytes() == (tmp_path / "b" / "out" / name).read_bytes(), name
+    a, b = (json.loads((tmp_path / side / "out" / "manifest.json").read_text()) for side in ("a", "b"))
+    for m in (a, b):
+        assert m["draw_count"] == 1 and m["history"]["draws"] == 1
+        del m["outputs"]["draws.csv"], m["history"]["this_draw"]
+    assert a == b
 
 
 def test_existing_output_is_refused_without_overwrite(design, demo_inputs, capsys):
@@ -117,7 +130,8 @@ def test_existing_output_is_refused_without_overwrite(design, demo_inputs, capsy
     assert (design / "schedule.csv").read_bytes() == before
 
 
-def test_overwrite_replaces_and_the_draw_record_counts_draws(demo_inputs, tmp_path):
+def test_overwrite_replaces_and_the_draw_record_counts_draws(demo_inputs, tmp_path, monkeypatch):
+    monkeypatch.setenv("GEOSAMPLE_HISTORY_DIR", str(tmp_path / "history"))  # the record beside the plan alone
     out = tmp_path / "out"
     record = draw_record_path(demo_inputs)
     n0 = len(record.read_text().splitlines()) - 1 if record.exists() else 0

@@ -28,6 +28,7 @@ def cli() -> None:
     \b
     Typical use:
       geosample size --tolerance 15 --range 80      how many samples?
+      geosample register plan.toml -o reg.json ...  (optional) commit before the draw
       geosample plan plan.toml -o design/           draw sites and field days
       geosample verify design/                      re-check a design
       geosample assess design/ results.csv          estimate and statement
@@ -40,7 +41,7 @@ def cli() -> None:
 def _register() -> None:
     from . import size as _size  # noqa: F401  (each module adds its command)
 
-    for name in ("plan", "verify", "assess", "demo"):
+    for name in ("register", "plan", "verify", "assess", "demo"):
         try:
             __import__(f"{__name__}.{name}")
         except ModuleNotFoundError as exc:  # a command not built yet

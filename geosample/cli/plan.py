@@ -16,25 +16,39 @@ from ._common import command, echo_json
 @click.option("--overwrite", is_flag=True, help="Replace OUT if it exists.")
 @click.option("--bundle-inputs", is_flag=True,
               help="Copy the plan and its layers into OUT/inputs/ so the folder alone can be verified.")
+@click.option("--registration", type=click.Path(path_type=Path), default=None, metavar="REGISTRATION.json",
+              help="Draw under this registration (written earlier by 'geosample register'); needs --public-value.")
+@click.option("--public-value", default=None, metavar="TEXT",
+              help="The public value the registration names, exactly as its source published it.")
 @click.option("--json", "as_json", is_flag=True, help="Print a summary as JSON.")
-def plan_command(plan_file: Path, out: Path, overwrite: bool, bundle_inputs: bool, as_json: bool) -> None:
+def plan_command(plan_file: Path, out: Path, overwrite: bool, bundle_inputs: bool, registration: Path | None,
+                 public_value: str | None, as_json: bool) -> None:
     """Build the sampling frame, size and allocate the effort, draw primary and
     reserve sites and the field days and times, plan the day routes, and write
     the field package into OUT: schedule.csv, sites.gpx, sites.geojson,
     map.html, report.html and manifest.json.
 
-    Each run is added to the plan's draw record (PLAN.toml.draws.csv beside the
-    plan file); the report says how many draws this plan has had. Draw once.
+    Each run is added to the plan's draw history, kept by the plan's content (not
+    its file name): OUT/draws.csv, a per-user store and PLAN.toml.draws.csv
+    beside the plan. The report says how many draws this plan has had. Draw once.
+
+    With --registration and --public-value the seed is made from the registration
+    and the public value (see 'geosample register'); the plan and its layers must
+    be the registered ones, the plan must not fix its own seed, and the public
+    value's date must have begun.
     """
     from ..workflow import run_plan
     from ._progress import steps
 
     with steps("geosample plan") as progress:
-        run = run_plan(plan_file, out, overwrite=overwrite, progress=progress, bundle_inputs=bundle_inputs)
+        run = run_plan(plan_file, out, overwrite=overwrite, progress=progress, bundle_inputs=bundle_inputs,
+                       registration=registration, public_value=public_value)
     _summary(run, as_json)
 
 
 def _summary(run, as_json: bool) -> None:
+    from ..registration import printable
+
     d = run.design
     a = d.allocation
     primaries = sum(1 for s in d.draw.sites if s.role == "primary")
@@ -43,6 +57,7 @@ def _summary(run, as_json: bool) -> None:
     if as_json:
         echo_json({
             "out": str(run.folder), "seed": str(d.seed), "seed_source": d.seed_source, "draw_count": d.draw_count,
+            "registration": d.registration,
             "n": a.total, "allocation": a.as_dict(), "bound": a.bound, "error_bound": a.error_bound,
             "achieved_tolerance": a.achieved_tolerance, "primary_sites": primaries, "reserve_sites": reserves,
             "field_days": len(days), "files": sorted(run.files),
@@ -54,6 +69,13 @@ def _summary(run, as_json: bool) -> None:
     if days:
         click.echo(f"  {len(days)} field days from {days[0]} to {days[-1]}.")
     click.echo(f"  Seed {d.seed} ({d.seed_source}); draw {d.draw_count} for this plan.")
+    if d.registration:
+        click.echo(f"  Registered draw: registration {d.registration['sha256'][:16]}..., public value "
+                   f"\"{printable(d.registration['public_value'])}\" ({printable(d.registration['public_source'])}, "
+                   f"{d.registration['public_date']}).")
+    else:
+        click.echo("  Not registered: nothing shows the seed was chosen before the sites were seen "
+                   "(see 'geosample register').")
     if d.draw_count > 1:
         click.echo("  Note: this plan has been drawn before. The report says so: re-drawing until the sites look "
                    "convenient defeats the randomisation.")

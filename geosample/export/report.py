@@ -55,6 +55,7 @@ SEED_SOURCES = {
           "the manifest",
     "text": "the SHA-256 of a seed text (announcing the text before the draw lets anyone check that the seed "
             "was not chosen after seeing the sites)",
+    "registered": "made from the registration and a public value published after it (see below)",
 }
 
 _DAY_NAMES = {"mon": "Monday", "tue": "Tuesday", "wed": "Wednesday", "thu": "Thursday", "fri": "Friday",
@@ -272,6 +273,28 @@ def _draw(design: Design) -> dict:
     }
 
 
+def _seed_choice(design: Design) -> dict:
+    """The "How the seed was chosen" subsection: registered or not, the seed text, the draw history."""
+    from ..registration import printable
+
+    reg = design.registration or {}
+    seed_text = (design.settings.get("draw") or {}).get("seed_text") if design.seed_source == "text" else None
+    history = design.history or {}
+    return {
+        "registered": bool(reg),
+        "seed": str(design.seed),
+        "source_text": SEED_SOURCES.get(design.seed_source, design.seed_source),
+        "digest": str(reg.get("sha256", "")),
+        "public_source": printable(reg.get("public_source", "")),
+        "public_date": str(reg.get("public_date", "")),
+        "public_value": printable(reg.get("public_value", "")),
+        "seed_text": None if seed_text is None else printable(seed_text),
+        "draw_count": design.draw_count,
+        "earlier_draws": design.draw_count > 1,
+        "history_file": history.get("file", ""),
+    }
+
+
 def _schedule(design: Design) -> dict:
     sched = design.schedule
     t = design.settings.get("time", {})
@@ -359,8 +382,8 @@ def report_context(design: Design) -> dict:
     Returns
     -------
     dict
-        Keys ``survey, version, sizing, allocation, frame, draw, schedule,
-        routes, claims, cautions, warnings, files``.
+        Keys ``survey, version, sizing, allocation, frame, draw, seed_choice,
+        schedule, routes, claims, cautions, warnings, files``.
     """
     s = design.survey
     warnings = list(design.frame.warnings) + list(design.draw.warnings) + list(design.schedule.warnings)
@@ -374,6 +397,7 @@ def report_context(design: Design) -> dict:
         "allocation": _allocation_rows(design),
         "frame": _frame(design),
         "draw": _draw(design),
+        "seed_choice": _seed_choice(design),
         "schedule": _schedule(design),
         "routes": _route_rows(design),
         "claims": claim_wording(design),
