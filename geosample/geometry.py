@@ -28,6 +28,7 @@ import numpy as np
 
 from .errors import InfeasibleError, LayerError, SettingError
 from .model import AccessPoint, Frame, Removal, Stratum
+from .names import check_unique, stratum_name
 from .router import GRID_RELATIVE_ERROR, WaterRouter
 from .shapes import polygonal as _polygonal
 
@@ -460,11 +461,15 @@ def _strata_from_layer(gdf: Any, field: str | None, frame: Any, notes: list[str]
         rows = ", ".join(str(int(i)) for i in np.flatnonzero(empty.values)[:10])
         raise LayerError(f"area.strata: {int(empty.sum())} feature(s) have no value in field {field!r} "
                          f"(features {rows}); give every stratum polygon a name.")
-    out = []
-    for name in dict.fromkeys(values.astype(str)):  # first-appearance order
-        part = _union(gdf[values.astype(str) == name])
-        out.append((name, _polygonal(part.intersection(frame))))
-    return out
+    names = [stratum_name(v, setting=f"area.strata ({field})", where=f"feature {i}")
+             for i, v in enumerate(values.tolist())]
+    check_unique([(n, f"feature {i}") for i, n in enumerate(names)], setting=f"area.strata ({field})",
+                 fix="a stratum is one feature (a MultiPolygon for a stratum in several parts): merge those "
+                     "features in the GIS, or give them different names")
+    import shapely
+
+    geoms = [g if shapely.is_valid(g) else shapely.make_valid(g) for g in gdf.geometry.values]
+    return [(name, _polygonal(geoms[i].intersection(frame))) for i, name in enumerate(names)]
 
 
 def _water_body_names(gdf: Any, field: str | None) -> list[str]:
@@ -479,7 +484,9 @@ def _water_body_names(gdf: Any, field: str | None) -> list[str]:
     out = []
     for i, v in enumerate(gdf[field].tolist()):
         text = "" if v is None else str(v).strip()
-        out.append(text if text and text.lower() != "nan" else f"Water body {i + 1}")
+        named = text and text.lower() != "nan"
+        out.append(stratum_name(text, setting=f"area.name_field ({field})", where=f"feature {i}") if named
+                   else f"Water body {i + 1}")
     return out
 
 
@@ -575,6 +582,10 @@ def _finish_strata(pieces: list[tuple[str, Any]], codes: list[str] | None, frame
         rest = _polygonal(frame.difference(covered))
         rest_area = _area(rest)
     if rest_area > _SLIVER_RTOL * frame_area:
+        if remainder is not None:
+            remainder = stratum_name(remainder, setting="area.remainder")
+            check_unique([(n, f"stratum {n!r}") for n, _ in pieces] + [(remainder, "area.remainder")],
+                         setting="area.remainder", fix="name the rest of the water differently from every stratum")
         if remainder is None:
             raise LayerError(
                 f"area.strata: {_fmt_m2(rest_area)} of the frame ({100 * rest_area / frame_area:.2f} % of it) "

@@ -72,28 +72,93 @@ def _check_file(path: Path, what: str) -> None:
             f"{_plan_key(what)}: the file {str(path)!r} does not exist. Check the path given for "
             f"{_plan_key(what)} in the plan (paths are relative to the plan file)."
         )
-    if path.is_dir() and path.suffix.lower() not in (".gdb",):
+    if path.is_dir():
+        if path.suffix.lower() in (".gdb",):
+            return
         raise InputFileError(
             f"{_plan_key(what)}: {str(path)!r} is a folder, not a layer file. Give the path of a "
             "GeoJSON, GeoPackage or Shapefile (.shp) file."
         )
+    try:
+        with open(path, "rb") as fh:
+            first = fh.read(1)
+    except OSError as exc:
+        raise InputFileError(
+            f"{_plan_key(what)}: the file {str(path)!r} cannot be opened ({exc.strerror or exc}). This is not a "
+            "format problem: check that the file is readable by you (its permissions, or a lock by another "
+            "program), then run again."
+        ) from None
+    if not first:
+        raise InputFileError(
+            f"{_plan_key(what)}: the file {str(path)!r} is empty (0 bytes): it holds no layer. It was not saved "
+            "completely, or it is a placeholder: export the layer again from the GIS."
+        )
 
 
-def _list_layers(path: Path) -> list[str]:
+_FORMATS = {".geojson": "GeoJSON", ".json": "GeoJSON", ".gpkg": "GeoPackage", ".shp": "Shapefile",
+            ".kml": "KML", ".gml": "GML", ".fgb": "FlatGeobuf"}
+
+
+def _unreadable(path: Path, key: str, exc: Exception) -> InputFileError:
+    """The message for a file GDAL cannot open: damaged, or not the format its name says, or an unknown format."""
+    detail = str(exc).split("; It might help")[0].replace(str(path), path.name).strip().rstrip(".")
+    fmt = _FORMATS.get(path.suffix.lower())
+    if fmt is not None:
+        extra = " (a Shapefile also needs its .shx and .dbf beside the .shp)" if fmt == "Shapefile" else ""
+        return InputFileError(
+            f"{key}: {str(path)!r} is named as a {fmt} file but cannot be read as one (GDAL: {detail}){extra}. "
+            f"The file is damaged or cut short, or holds something else under a {path.suffix} name: export the "
+            f"layer again from the GIS as {fmt}.")
+    return InputFileError(
+        f"{key}: {str(path)!r} cannot be read as a spatial layer (GDAL: {detail}). Accepted are the vector "
+        "formats GDAL reads, e.g. GeoJSON, GeoPackage (.gpkg) or Shapefile (.shp with its .shx and .dbf).")
+
+
+def _list_layers(path: Path, key: str) -> list[str]:
+    import warnings
+
     import pyogrio
 
     try:
-        return [str(row[0]) for row in pyogrio.list_layers(path)]
-    except Exception:  # unreadable: read_dataframe below reports it
-        return []
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # GDAL's own notes; the message below says it all
+            return [str(row[0]) for row in pyogrio.list_layers(path)]
+    except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, ValueError, OSError) as exc:
+        if _sqlite_without_tables(path):
+            return []  # an empty GeoPackage: GDAL does not open it, the caller says it holds no layers
+        raise _unreadable(path, key, exc) from None
+
+
+def _sqlite_without_tables(path: Path) -> bool:
+    """True for a SQLite file (a GeoPackage) that lists no layer in ``gpkg_contents`` or has no such table."""
+    import sqlite3
+
+    try:
+        with open(path, "rb") as fh:
+            if fh.read(16) != b"SQLite format 3\x00":
+                return False
+        con = sqlite3.connect(f"{path.resolve().as_uri()}?mode=ro", uri=True)
+        try:
+            tables = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+            if "gpkg_contents" not in tables:
+                return not (tables - {"gpkg_spatial_ref_sys", "gpkg_extensions", "gpkg_geometry_columns",
+                                      "gpkg_ogr_contents", "sqlite_sequence"})
+            return con.execute("SELECT COUNT(*) FROM gpkg_contents").fetchone()[0] == 0
+        finally:
+            con.close()
+    except (OSError, sqlite3.Error):
+        return False
 
 
 def _read(path: Path, layer: str | None, what: str) -> Any:
     import pyogrio
     import geopandas
 
-    layers = _list_layers(path)
     key = _plan_key(what)
+    layers = _list_layers(path, key)
+    if not layers:
+        raise LayerError(f"{key}: {str(path)!r} holds no layers (an empty container). Save the water body's "
+                         "polygons into it from the GIS, or give the file that holds them.")
     layer_key = f"{key}_layer" if key in ("area.water", "area.strata") else "the layer name"
     if layer is not None and layers and layer not in layers:
         raise LayerError(
@@ -108,10 +173,26 @@ def _read(path: Path, layer: str | None, what: str) -> Any:
     try:
         return geopandas.read_file(path, layer=layer, engine="pyogrio")
     except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, ValueError, OSError) as exc:
-        raise InputFileError(
-            f"{key}: {str(path)!r} cannot be read as a spatial layer ({exc}). Accepted are the vector "
-            "formats GDAL reads, e.g. GeoJSON, GeoPackage (.gpkg) or Shapefile (.shp with its .shx and .dbf)."
-        ) from exc
+        raise _unreadable(path, key, exc) from None
+
+
+def _check_finite(gdf: Any, path: Path, what: str) -> None:
+    """Refuse vertices with a NaN or infinite coordinate: no repair can know where they should be."""
+    import numpy as np
+    import shapely
+
+    coords, index = shapely.get_coordinates(gdf.geometry.values, include_z=False, return_index=True)
+    bad = ~np.isfinite(coords).all(axis=1)
+    if not bad.any():
+        return
+    features = sorted(set(int(i) for i in index[bad]))
+    name_col = name_column(gdf.columns)
+    labels = ", ".join(_feature_label(gdf, i, name_col) for i in features[:5])
+    first = coords[bad][0]
+    raise LayerError(
+        f"{_plan_key(what)}: {str(path)!r} has {int(bad.sum())} vertex(es) with a coordinate that is not a number "
+        f"(NaN or infinite, e.g. ({first[0]:g}, {first[1]:g})) in {labels}. No repair can know where such a corner "
+        "belongs: correct or delete those vertices in the GIS and export the layer again.")
 
 
 def _assign_crs(gdf: Any, path: Path, what: str, crs: Any, warnings: list[str]) -> Any:
@@ -290,6 +371,7 @@ def read_layer(path: str | Path, *, layer: str | None = None, what: str = "water
         warnings.append(f"{key}: {path.name} has {int(missing.sum())} feature(s) without a geometry; "
                         "they were left out.")
         gdf = gdf[~missing].reset_index(drop=True)
+    _check_finite(gdf, path, what)
     gdf = _assign_crs(gdf, path, what, crs, warnings)
     _check_lonlat_range(gdf, path, what)
     _check_kind(gdf, path, what, kind)

@@ -35,6 +35,8 @@ from pathlib import Path
 from typing import Any, Callable
 
 from .errors import InputFileError, PlanError, SettingError
+from .names import check_unique, stratum_name
+from .limits import MAX_SEASON_DAYS, YEARS, check_size_numbers, check_value, limits_markdown
 from .randomizer.space import METHODS as DRAW_METHODS  # the choices are defined once, in their modules
 from .stats.sizing import ALLOCATION_METHODS as ALLOCATIONS
 from .stats.sizing import BOUNDS
@@ -383,6 +385,7 @@ def validate(raw: dict, *, source: str = "plan") -> tuple[dict, tuple[str, ...]]
             if not spec.check(value):
                 raise SettingError(f"{section}.{key}", value, spec.accepted,
                                    fix=f"change it in {source} ({key}: {spec.help.rstrip('.')})")
+            check_value(f"{section}.{key}", value)
             out[key] = value
         settings[section] = out
     _cross_check(settings, source, warnings)
@@ -408,6 +411,11 @@ def _cross_check(s: dict, source: str, warnings: list[str]) -> None:
     if area["reach_m"] is not None and not area["access"]:
         raise SettingError("area.reach_m", area["reach_m"], "reach_m together with an access point layer",
                            fix="add access = \"launches.geojson\", or remove reach_m")
+    check_size_numbers(tolerance=size["tolerance"], range=size["range"], sd=size["sd"],
+                       statistic=s["survey"]["statistic"])
+    if s["survey"]["statistic"] == "geomean" and s["survey"]["criterion"] is not None and s["survey"]["criterion"] <= 0:
+        raise SettingError("survey.criterion", s["survey"]["criterion"], 'a number above 0 with statistic = "geomean" '
+                           "(a geometric mean is always above 0)", fix="write the criterion in the results' units")
     if size["n"] is None and size["tolerance"] is None:
         raise PlanError(f"{source}: [size] needs tolerance (the half-width D you want), or a fixed total n.")
     if size["bound"] in ("chebyshev", "cantelli", "hoeffding", "bernstein", "betting"):
@@ -425,6 +433,12 @@ def _cross_check(s: dict, source: str, warnings: list[str]) -> None:
     if size["bound"] == "cantelli" and size["sides"] == "two":
         raise SettingError("size.sides", "two", '"one" with bound = "cantelli" (a one-sided bound)',
                            fix='write sides = "one", or use bound = "chebyshev" for a two-sided interval')
+    names = {name: stratum_name(name, setting=f"size.strata.{name}") for name in size["strata"]}
+    check_unique([(n, f"[size.strata.{raw}]") for raw, n in names.items()], setting="size.strata",
+                 fix="give each stratum one [size.strata.NAME] table")
+    size["strata"] = {names[raw]: table for raw, table in size["strata"].items()}
+    if area["remainder"] is not None:
+        area["remainder"] = stratum_name(area["remainder"], setting="area.remainder")
     for name, table in size["strata"].items():
         if not isinstance(table, dict):
             raise PlanError(f"{source}: size.strata.{name} must be a table, e.g. [size.strata.{name}] with sd = 12.")
@@ -434,6 +448,10 @@ def _cross_check(s: dict, source: str, warnings: list[str]) -> None:
                                 f"{_did_you_mean(key, list(STRATUM_KEYS))}")
             if not STRATUM_KEYS[key].check(value):
                 raise SettingError(f"size.strata.{name}.{key}", value, STRATUM_KEYS[key].accepted)
+            check_value(f"size.strata.{name}.{key}", value)
+            if key in ("sd", "range"):
+                check_size_numbers(tolerance=None, range=None, sd=value, statistic=s["survey"]["statistic"],
+                                   names={"sd": f"size.strata.{name}.{key}"})
     if size["allocation"] == "optimal":
         if not size["strata"] or not all(t.get("cost") for t in size["strata"].values()):
             warnings.append('size.allocation = "optimal" without a cost for every stratum: missing costs count as 1.')
@@ -443,6 +461,15 @@ def _cross_check(s: dict, source: str, warnings: list[str]) -> None:
     if time["start"] > time["end"]:
         raise SettingError("time.end", time["end"].isoformat(), f"a date on or after time.start = "
                            f"{time['start'].isoformat()}", fix="the dates look reversed: swap start and end")
+    for key in ("start", "end"):
+        if not YEARS[0] <= time[key].year <= YEARS[1]:
+            raise SettingError(f"time.{key}", time[key].isoformat(), f"a date in the years {YEARS[0]} to {YEARS[1]}",
+                               fix="check the year")
+    span = (time["end"] - time["start"]).days + 1
+    if span > MAX_SEASON_DAYS:
+        raise SettingError("time.end", time["end"].isoformat(), f"a season of at most {MAX_SEASON_DAYS} days "
+                           f"(five years); from time.start = {time['start'].isoformat()} it is {span} days",
+                           fix="plan one season at a time: check the years of start and end")
     days = []
     for d in time["days"]:
         short = d.strip().lower()[:3]
@@ -461,13 +488,29 @@ _FULL = {"mon": "monday", "tue": "tuesday", "wed": "wednesday", "thu": "thursday
 
 
 def _check_timezone(name: str) -> None:
-    from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
+    """Refuse a name that is not a tz database zone, with the nearest names (a region such as "America" too)."""
+    from zoneinfo import ZoneInfo, available_timezones
 
+    accepted = 'an IANA time zone name such as "America/Chicago"'
+    if len(name) > 64 or not name.isprintable():
+        shown = name if len(name) <= 64 else name[:40] + f"... ({len(name)} characters)"
+        raise SettingError("survey.timezone", shown, accepted, fix="a zone name is short and printable, e.g. "
+                           '"Europe/Berlin"; see the list of tz database names')
     try:
         ZoneInfo(name)
-    except (ZoneInfoNotFoundError, ValueError):
-        raise SettingError("survey.timezone", name, 'an IANA time zone name such as "America/Chicago"',
-                           fix="see the list of tz database names; UTC offsets like +02:00 are not zones") from None
+        return
+    except Exception:  # not found, a folder of the database (a region), an invalid name: all say the same below
+        pass
+    zones = available_timezones()
+    region = sorted(z for z in zones if z.startswith(name.strip("/") + "/"))
+    if region:
+        examples = ", ".join(repr(z) for z in region[:3])
+        raise SettingError("survey.timezone", name, accepted, fix=f"{name.strip('/')!r} is a region, not a zone: "
+                           f"write the zone of the survey's place, e.g. {examples}")
+    close = difflib.get_close_matches(name, sorted(zones), n=3, cutoff=0.6)
+    hint = f"did you mean {', '.join(repr(z) for z in close)}? " if close else ""
+    raise SettingError("survey.timezone", name, accepted,
+                       fix=f"{hint}see the list of tz database names; UTC offsets like +02:00 are not zones")
 
 
 # --------------------------------------------------------------------------- docs
@@ -486,7 +529,8 @@ def schema_markdown() -> str:
               "| key | accepted | meaning |", "|---|---|---|"]
     for key, spec in STRATUM_KEYS.items():
         lines.append(f"| `{key}` | {spec.accepted} | {spec.help} |")
-    return "\n".join(lines) + "\n"
+    lines += [""] + limits_markdown()
+    return "\n".join(lines).rstrip("\n") + "\n"
 
 
 if __name__ == "__main__":  # pragma: no cover

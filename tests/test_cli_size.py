@@ -101,3 +101,17 @@ def test_unknown_bound_lists_every_bound(capsys):
 def test_help_lists_the_bounds(capsys):
     code, out, _ = run(capsys, "--help")
     assert code == 0 and all(b in out for b in BOUNDS) and "--tolerance" in out
+
+
+@pytest.mark.parametrize("args, words", [
+    (["--tolerance", "1e-200", "--range", "80"], "--tolerance = 1e-200"),  # was a ZeroDivisionError
+    (["--tolerance", "1e308", "--range", "80"], "--tolerance = 1e+308"),  # was "error probability at most 0"
+    (["--tolerance", "400", "--range", "2", "--statistic", "geomean"], "factor of 10^400"),  # was an OverflowError
+    (["--tolerance", "100", "--range", "80"], "at most the range --range = 80"),
+    (["--tolerance", "15", "--range", "inf"], "a finite number"),
+    (["--n", "10000000000", "--range", "80", "--tolerance", "15"], "--n = 10000000000"),
+])
+def test_absurd_sizes_exit_2_naming_the_option(capsys, args, words):
+    code, out, err = run(capsys, *args)
+    assert code == 2, out + err
+    assert words in err and "Traceback" not in err

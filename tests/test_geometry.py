@@ -320,6 +320,41 @@ def test_strata_layer_is_clipped_with_codes_and_weights(square_lake):
     assert [s.weight for s in frame.strata] == pytest.approx([0.5, 0.5])
 
 
+def test_stratum_names_are_normalised_once(square_lake):
+    # a trailing space, a no-break space (U+00A0) and a decomposed accent (e + U+0301; NFC composes it: Unicode
+    # Standard Annex #15) would not survive a spreadsheet round trip of schedule.csv
+    g = halves()
+    g["zone"] = ["West\u00a0Arm ", "Cafe\u0301  Arm"]
+    frame = build_frame(square_lake, strata=g, strata_field="zone")
+    assert [s.name for s in frame.strata] == ["West Arm", "Caf\u00e9 Arm"]
+
+
+@pytest.mark.parametrize("bad, words", [("West\nArm", "line break"), ("West\tArm", "tab"),
+                                        ("West\x07Arm", "U+0007")])
+def test_a_stratum_name_with_a_control_character_is_refused(square_lake, bad, words):
+    g = halves()
+    g["zone"] = [bad, "East Arm"]
+    with pytest.raises(SettingError) as err:
+        build_frame(square_lake, strata=g, strata_field="zone")
+    assert words in str(err.value) and "feature 0" in str(err.value)
+
+
+@pytest.mark.parametrize("names", [["Arm", "Arm"], ["Arm", " Arm\u00a0"], ["Arm", "ARM"]])
+def test_two_strata_features_with_one_name_are_refused_not_merged(square_lake, names):
+    g = halves()
+    g["zone"] = names
+    with pytest.raises(SettingError) as err:
+        build_frame(square_lake, strata=g, strata_field="zone")
+    msg = str(err.value).lower()
+    assert "feature 0" in msg and "feature 1" in msg and "merge those features" in msg
+
+
+def test_a_remainder_named_like_a_stratum_is_refused(square_lake):
+    part = utm_gdf([shapely.box(X0 - 10, Y0 - 10, X0 + 500, Y0 + 2010)], zone=["Inlet"])
+    with pytest.raises(SettingError, match="area.remainder"):
+        build_frame(square_lake, strata=part, strata_field="zone", remainder="inlet ")
+
+
 def test_unknown_strata_field_lists_the_fields(square_lake):
     with pytest.raises(LayerError) as err:
         build_frame(square_lake, strata=halves(), strata_field="basin")

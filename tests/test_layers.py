@@ -61,10 +61,86 @@ def test_missing_file_names_path_and_plan_key(tmp_path):
 
 
 def test_unreadable_file_is_an_input_file_error(tmp_path):
+    # a file named .geojson that is not GeoJSON: damaged, not a question of which formats are accepted
     path = tmp_path / "broken.geojson"
     path.write_text("this is not GeoJSON {", encoding="utf-8")
+    with pytest.raises(InputFileError, match="named as a GeoJSON file but cannot be read as one.*export the layer"):
+        read_layer(path)
+
+
+def test_a_file_of_unknown_kind_gets_the_list_of_formats(tmp_path):
+    path = tmp_path / "lake.txt"
+    path.write_text("this is not a layer", encoding="utf-8")
     with pytest.raises(InputFileError, match="cannot be read as a spatial layer.*GeoJSON, GeoPackage"):
         read_layer(path)
+
+
+def test_an_empty_file_is_called_empty_not_an_unsupported_format(tmp_path):
+    for name in ("lake.geojson", "lake.gpkg"):
+        path = tmp_path / name
+        path.write_bytes(b"")
+        with pytest.raises(InputFileError) as err:
+            read_layer(path)
+        assert "is empty (0 bytes)" in str(err.value)
+        assert "supported file format" not in str(err.value)
+
+
+def test_a_geopackage_without_layers_says_so(tmp_path):
+    import sqlite3
+
+    # a GeoPackage written by GDAL whose only layer is then dropped (its rows in the GeoPackage's own tables too)
+    import geopandas
+    import shapely
+
+    path = tmp_path / "lake.gpkg"
+    geopandas.GeoDataFrame({"name": ["x"]}, geometry=[shapely.box(0, 0, 1, 1)], crs=4326).to_file(path, layer="tarn")
+    con = sqlite3.connect(path)
+    for table in ("gpkg_contents", "gpkg_geometry_columns"):
+        con.execute(f"DELETE FROM {table} WHERE table_name = 'tarn'")
+    con.execute("DROP TABLE tarn")
+    con.commit()
+    con.close()
+    with pytest.raises(LayerError, match="holds no layers"):
+        read_layer(path)
+
+
+def test_a_file_that_cannot_be_opened_is_not_given_format_advice(tmp_path, monkeypatch):
+    # tests run as root here, so a chmod would not stop the read: make open() fail as it does without permission
+    import builtins
+
+    path = tmp_path / "lake.geojson"
+    path.write_text("{}", encoding="utf-8")
+    real_open = builtins.open
+
+    def deny(file, *a, **k):
+        if str(file) == str(path):
+            raise PermissionError(13, "Permission denied", str(file))
+        return real_open(file, *a, **k)
+
+    monkeypatch.setattr(builtins, "open", deny)
+    with pytest.raises(InputFileError) as err:
+        read_layer(path)
+    msg = str(err.value)
+    assert "cannot be opened (Permission denied)" in msg and "not a format problem" in msg
+    assert "GeoPackage" not in msg
+
+
+@pytest.mark.parametrize("kind", ["polygon", "point"])
+def test_a_nan_vertex_is_refused_not_repaired(tmp_path, kind):
+    import json
+
+    if kind == "polygon":
+        geom = {"type": "Polygon", "coordinates": [[[-97.55, 46.05], [-97.52, 46.05], [-97.52, float("nan")],
+                                                    [-97.55, 46.06], [-97.55, 46.05]]]}
+    else:
+        geom = {"type": "Point", "coordinates": [float("nan"), 46.05]}
+    path = tmp_path / "layer.geojson"
+    path.write_text(json.dumps({"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"name": "Pellow Tarn"}, "geometry": geom}]}), encoding="utf-8")
+    with pytest.raises(LayerError) as err:
+        read_layer(path, what="access" if kind == "point" else "water", kind=kind)
+    msg = str(err.value)
+    assert "not a number (NaN" in msg and "Pellow Tarn" in msg
 
 
 def test_layer_without_crs_is_refused_with_the_way_to_declare_one(write_layer, square_lake):

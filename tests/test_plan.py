@@ -125,6 +125,55 @@ def test_wrong_values_name_the_key_and_value(old, new, setting):
     assert isinstance(info.value, ValueError)  # the builtin it also inherits
 
 
+@pytest.mark.parametrize(
+    "old, new, setting, words",
+    [
+        ('timezone = "America/Chicago"', 'timezone = "America"', "survey.timezone", "is a region, not a zone"),
+        ('timezone = "America/Chicago"', 'timezone = "America/Chicgo"', "survey.timezone", "'America/Chicago'"),
+        ('timezone = "America/Chicago"', f'timezone = "{"A" * 5000}"', "survey.timezone", "5000 characters"),
+        ('timezone = "America/Chicago"', 'timezone = "America/\\u0000x"', "survey.timezone", "printable"),
+        ("tolerance = 15", "tolerance = 1e-200", "size.tolerance", "between 1e-12 and 1e+12"),
+        ("tolerance = 15", "tolerance = 1e308", "size.tolerance", "between 1e-12 and 1e+12"),
+        ("tolerance = 15", "tolerance = 100", "size.tolerance", "at most the range size.range = 80"),
+        ("tolerance = 15", "tolerance = 1e-9", "size.tolerance", "at least size.range / 1e+09"),
+        ("[survey]", '[survey]\nstatistic = "geomean"', "size.tolerance", "at most 10 log10 units"),
+        ("[time]", "[time]\nper_day = 10000000000", "time.per_day", "at most 1000"),
+        ("[time]", "[time]\nfield_days = 99999", "time.field_days", "at most 1830"),
+        ("[time]", "[time]\nspeed_kmh = 1e-300", "time.speed_kmh", "between 0.1 and 500"),
+        ("[size]", "[size]\nn = 2000000", "size.n", "at most 100000"),
+        ("end = 2027-08-31", "end = 2027-08-31\n[size.strata.A]\nsd = 1e300", "size.strata.A.sd", "1e+12"),
+        ("[area]", "[area]\nreach_m = 1e9\naccess = 'a.geojson'", "area.reach_m", "20 000 km"),
+        ("[area]", "[area]\nshore_m = [0, 1e12]", "area.shore_m", "20 000 km"),
+        ("[draw]" if "[draw]" in MINIMAL else "[time]", "[draw]\nreserve = 1e6\n[time]", "draw.reserve", "at most 10"),
+        ("end = 2027-08-31", "end = 3027-08-31", "time.end", "1900 to 2199"),
+        ("end = 2027-08-31", "end = 2037-08-31", "time.end", "at most 1830 days"),
+        ("[area]", '[area]\nremainder = "Open\\nWater"', "area.remainder", "line break"),
+    ],
+)
+def test_absurd_values_are_refused_with_the_bound(old, new, setting, words):
+    # each of these gave a traceback, an endless run or a silently absurd design before it was bounded
+    text = MINIMAL.replace(old, new, 1)
+    assert text != MINIMAL
+    with pytest.raises(SettingError) as info:
+        load(text)
+    assert info.value.setting == setting, str(info.value)
+    assert words in str(info.value)
+
+
+def test_a_geomean_criterion_must_be_above_zero():
+    text = MINIMAL.replace("tolerance = 15\nrange = 80", "tolerance = 0.3\nrange = 2").replace(
+        'title = "Test survey"', 'title = "Test survey"\nstatistic = "geomean"\ncriterion = 0')
+    with pytest.raises(SettingError, match="survey.criterion = 0 .*above 0"):
+        load(text)
+
+
+def test_size_strata_names_are_normalised_like_the_layer_names():
+    plan = load(MINIMAL + '[size.strata."North\u00a0Basin "]\nsd = 3\n')
+    assert list(plan.settings["size"]["strata"]) == ["North Basin"]
+    with pytest.raises(SettingError, match="differ only in letter case"):
+        load(MINIMAL + '[size.strata."North Basin"]\nsd = 3\n[size.strata."north basin"]\nsd = 4\n')
+
+
 def test_reversed_dates_say_so():
     text = MINIMAL.replace("start = 2027-06-01", "start = 2027-09-01")
     with pytest.raises(SettingError, match="reversed"):

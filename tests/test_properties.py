@@ -37,8 +37,11 @@ names = st.text(st.characters(codec="utf-8", exclude_categories=("Cs",)), min_si
 texts = st.text(st.characters(codec="utf-8", exclude_categories=("Cs",)), max_size=12)
 positive = st.one_of(st.integers(1, 10**6), st.floats(1e-6, 1e6, allow_nan=False))
 nonneg = st.one_of(st.integers(0, 10**6), st.floats(0, 1e6, allow_nan=False))
-posint = st.integers(1, 10**4)
+posint = st.integers(1, 500)  # within geosample.limits.LIMITS
 dates = st.dates(dt.date(2000, 1, 1), dt.date(2099, 12, 31))
+hours = st.one_of(st.integers(1, 720), st.floats(1e-3, 720, allow_nan=False))
+minutes = st.one_of(st.integers(0, 1440), st.floats(0, 1440, allow_nan=False))
+speeds = st.one_of(st.integers(1, 500), st.floats(0.1, 500, allow_nan=False))
 ZONES = ("UTC", "America/Chicago", "Europe/Berlin", "Australia/Hobart", "Pacific/Auckland")
 WINDOW_ENDS = ("sunrise", "sunrise+60", "sunset-120", "sunset", "07:00", "15:00", "noon")
 
@@ -75,29 +78,38 @@ def valid_plans(draw) -> dict:
         area.update(strata="zones", zones=draw(posint))
     area["remainder"] = _opt(draw, names)
     bound = draw(st.sampled_from(BOUNDS))
-    size = {"tolerance": draw(positive), "range": draw(positive), "sd": draw(positive),
+    statistic = survey["statistic"] or "mean"
+    scale = positive if statistic == "mean" else st.floats(1e-3, 10, allow_nan=False)
+    # the tolerance is at most the range, and at least range / 1e9 and sd / 1e9 (geosample.limits)
+    tol = draw(scale)
+    rng_ = draw(scale.filter(lambda v: tol <= v <= 1e9 * tol))
+    sd = draw(scale.filter(lambda v: v <= 1e9 * tol))
+    if statistic == "geomean" and survey["criterion"] is not None:
+        survey["criterion"] = abs(survey["criterion"]) + 1
+    size = {"tolerance": tol, "range": rng_, "sd": sd,
             "confidence": _opt(draw, st.floats(0.01, 0.999)), "bound": bound,
             "sides": "one" if bound == "cantelli" else _opt(draw, st.sampled_from(("two", "one"))),
             "allocation": _opt(draw, st.sampled_from(ALLOCATIONS)), "min_per_stratum": _opt(draw, posint),
             "n": _opt(draw, posint),
             "strata": draw(st.dictionaries(names, st.fixed_dictionaries(
-                {}, optional={k: positive for k in STRATUM_KEYS}), max_size=2))}
-    drawn = {"method": _opt(draw, st.sampled_from(DRAW_METHODS)), "reserve": _opt(draw, nonneg),
+                {}, optional={k: (positive if k == "cost" else scale) for k in STRATUM_KEYS}), max_size=2))}
+    drawn = {"method": _opt(draw, st.sampled_from(DRAW_METHODS)), "reserve": _opt(draw, st.floats(0, 10)),
              "spacing_m": _opt(draw, positive)}
     seed_kind = draw(st.sampled_from(("none", "seed", "text")))
     if seed_kind == "seed":
         drawn["seed"] = draw(st.integers(0, 2**63))
     elif seed_kind == "text":
         drawn["seed_text"] = draw(names)
-    start, end = sorted(draw(st.lists(dates, min_size=2, max_size=2)))
+    start = draw(dates)
+    end = start + dt.timedelta(days=draw(st.integers(0, 1829)))
     time = {"start": start, "end": end,
             "days": _opt(draw, st.lists(st.sampled_from(WEEKDAYS), min_size=1, max_size=7)),
             "skip": _opt(draw, st.lists(dates, max_size=3)),
             "window": _opt(draw, st.lists(st.sampled_from(WINDOW_ENDS), min_size=2, max_size=2)),
             "temporal": _opt(draw, st.sampled_from(("week", "month", "season"))),
-            "per_day": _opt(draw, posint), "field_days": _opt(draw, posint), "speed_kmh": _opt(draw, positive),
-            "minutes_on_site": _opt(draw, nonneg), "holding_h": _opt(draw, positive),
-            "lab_minutes": _opt(draw, nonneg)}
+            "per_day": _opt(draw, posint), "field_days": _opt(draw, posint), "speed_kmh": _opt(draw, speeds),
+            "minutes_on_site": _opt(draw, minutes), "holding_h": _opt(draw, hours),
+            "lab_minutes": _opt(draw, minutes)}
     plan = {"survey": survey, "area": area, "size": size, "draw": drawn, "time": time}
     return {s: {k: v for k, v in d.items() if v is not None} for s, d in plan.items()}
 

@@ -58,8 +58,12 @@ def size_command(tolerance: float | None, range_: float | None, sd: float | None
     the chance that their mean misses the true mean by D or more is at most the
     error probability printed.
     """
+    from ..limits import check_size_numbers, check_value
     from ..stats import sizing
 
+    check_size_numbers(tolerance=tolerance, range=range_, sd=sd, statistic=statistic,
+                       names={"tolerance": "--tolerance", "range": "--range", "sd": "--sd"})
+    check_value("size.n", n, name="--n")
     if sides is None:
         sides = "one" if bound == "cantelli" else "two"
     common = dict(range=range_, sd=sd, bound=bound, sides=sides, statistic=statistic, names=CLI_NAMES)
