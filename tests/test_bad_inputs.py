@@ -64,6 +64,7 @@ def test_corpus_is_complete():
     cases = [p.name for p in BAD.iterdir() if p.is_dir() and not p.name.startswith("__")]
     assert set(cases) == set(PLAN_CASES) | set(RESULT_CASES)
     assert len(PLAN_CASES) >= 10
+    assert len(cases) >= 40  # issue 11: at least 40 cases
     for case in cases:
         assert _expect(case)[0], case
 

@@ -154,6 +154,88 @@ def plan_cases() -> None:
     write_case("empty-gpkg-layer", folder_files, ["area.water", "water.gpkg", "no features"])
     empty_gpkg(HERE / "empty-gpkg-layer" / "water.gpkg")
 
+    more_plan_cases()
+
+
+def _variant(case, expect, *, replace=(), extra="", water=None, files=None, **kw):
+    """A plan case: the tarn plan with text replaced (old, new pairs) and ``extra`` appended."""
+    text = plan_text(case, **kw)
+    for old, new in replace:
+        assert old in text, (case, old)
+        text = text.replace(old, new, 1)
+    layers = {"water.geojson": tarn_layer() if water is None else water}
+    write_case(case, {"plan.toml": text + extra, **layers, **(files or {})}, expect)
+
+
+def more_plan_cases() -> None:
+    """Mistakes that gave a traceback, an endless run, a silent absurd design or a misleading message."""
+    tz = '"America/Chicago"'
+    _variant("timezone-region", ["survey.timezone = 'America'", "a region, not a zone", "America/"],
+             replace=[(tz, '"America"')])
+    _variant("timezone-too-long", ["survey.timezone", "(2999 characters)", "short and printable"],
+             replace=[(tz, '"' + "Europe/" * 428 + 'Ber"')])
+    _variant("timezone-offset", ["survey.timezone = '+02:00'", "UTC offsets like +02:00 are not zones"],
+             replace=[(tz, '"+02:00"')])
+    _variant("tolerance-tiny", ["size.tolerance = 1e-200", "between 1e-12 and 1e+12"], tolerance="1e-200")
+    _variant("tolerance-huge", ["size.tolerance = 1e+308", "between 1e-12 and 1e+12"], tolerance="1e308")
+    _variant("tolerance-wider-than-range", ["size.tolerance = 100", "at most the range size.range = 80",
+                                            "guarantees nothing"], tolerance="100")
+    _variant("geomean-tolerance-400", ["size.tolerance = 400", "log10 units", "factor of 10^400"], tolerance="400",
+             replace=[('criterion = 126', 'criterion = 126\nstatistic = "geomean"'), ("range = 80", "range = 3")])
+    _variant("geomean-criterion-zero", ["survey.criterion = 0", "above 0"], tolerance="0.3",
+             replace=[('criterion = 126', 'criterion = 0\nstatistic = "geomean"'), ("range = 80", "range = 3")])
+    _variant("per-day-huge", ["time.per_day = 10000000000", "at most 1000"], extra="per_day = 10000000000\n")
+    _variant("n-huge", ["size.n = 2000000", "at most 100000"], replace=[("range = 80", "range = 80\nn = 2000000")])
+    _variant("reserve-huge", ["draw.reserve = 1000000", "at most 10"],
+             replace=[("seed = 7", "seed = 7\nreserve = 1000000")])
+    _variant("season-millennium", ["time.end = '3027-06-30'", "1900 to 2199"], end="3027-06-30")
+    _variant("confidence-percent", ["size.confidence = 90", "strictly between 0 and 1"],
+             replace=[("confidence = 0.90", "confidence = 90")])
+    _variant("seed-and-seed-text", ["draw.seed_text", "either seed or seed_text, not both"],
+             replace=[("seed = 7", 'seed = 7\nseed_text = "announced 2027-05-01"')])
+    _variant("cantelli-two-sided", ["size.sides = 'two'", "cantelli"],
+             replace=[("confidence = 0.90", 'confidence = 0.90\nbound = "cantelli"\nsides = "two"')])
+    _variant("reach-without-access", ["area.reach_m = 500", "access"], area_extra="reach_m = 500\n")
+    _variant("shore-reversed", ["area.shore_m = [100, 20]", "Write [20, 100]"], area_extra="shore_m = [100, 20]\n")
+    _variant("weekday-typo", ["time.days = 'fryday'", "weekday names"], extra='days = ["mon", "fryday"]\n')
+    _variant("unknown-section", ["unknown section [sise]", "Did you mean 'size'?"],
+             replace=[("[size]", "[sise]")])
+    _variant("missing-timezone", ["[survey] needs timezone"], replace=[(f"timezone = {tz}\n", "")])
+    _variant("water-missing", ["area.water", "lake.geojson", "does not exist", "relative to the plan file"],
+             water="", replace=[('water = "water.geojson"', 'water = "lake.geojson"')])
+    _variant("water-empty-file", ["area.water", "is empty (0 bytes)"], water="")
+    _variant("water-not-geojson", ["area.water", "named as a GeoJSON file but cannot be read as one",
+                                   "export the layer again"], water='{"type": "FeatureCollection", "features": [\n')
+    _variant("water-empty-gpkg-file", ["area.water", "water.gpkg", "is empty (0 bytes)"], water="",
+             replace=[('water = "water.geojson"', 'water = "water.gpkg"')], files={"water.gpkg": b""})
+    point = json.dumps({"type": "FeatureCollection", "features": [{"type": "Feature", "properties": {"name": "Launch"},
+                        "geometry": {"type": "Point", "coordinates": ring([(0.001, 0.001)])[0]}}]}, indent=1) + "\n"
+    _variant("water-points", ["area.water", "1 Point", "needs polygons"], water=point)
+    nan_tarn = tarn_layer().replace(f"{LAT0 + 0.01:.2f}", "NaN", 1)
+    assert "NaN" in nan_tarn
+    _variant("water-nan-vertex", ["area.water", "not a number (NaN", "Pellow Tarn"], water=nan_tarn)
+    nan_point = point.replace(f"{LAT0 + 0.001:.3f}", "NaN", 1)
+    assert "NaN" in nan_point
+    _variant("access-nan-point", ["area.access", "not a number (NaN", "Launch"], area_extra='access = "access.geojson"\n',
+             files={"access.geojson": nan_point})
+    west = [(-0.01, -0.01), (0.015, -0.01), (0.015, 0.02), (-0.01, 0.02), (-0.01, -0.01)]
+    east = [(0.015, -0.01), (0.04, -0.01), (0.04, 0.02), (0.015, 0.02), (0.015, -0.01)]
+    strata = 'strata = "zones.geojson"\nstrata_field = "zone"\n'
+    _variant("strata-same-name", ["area.strata (zone) = 'Bay'", "both named 'Bay'", "merge those features"],
+             area_extra=strata, files={"zones.geojson": geojson([({"zone": "Bay"}, ring(west)),
+                                                                 ({"zone": "Bay"}, ring(east))])})
+    _variant("strata-name-case", ["differ only in letter case", "'West Bay'", "'west bay'"], area_extra=strata,
+             files={"zones.geojson": geojson([({"zone": "West Bay"}, ring(west)),
+                                              ({"zone": "west\u00a0bay "}, ring(east))])})
+    _variant("strata-name-line-break", ["area.strata (zone)", "line break", "feature 1"], area_extra=strata,
+             files={"zones.geojson": geojson([({"zone": "West Bay"}, ring(west)),
+                                              ({"zone": "East\nBay"}, ring(east))])})
+    _variant("strata-field-unknown", ["area.strata_field", "no field 'basin'", "'zone'"],
+             area_extra='strata = "zones.geojson"\nstrata_field = "basin"\n',
+             files={"zones.geojson": geojson([({"zone": "West"}, ring(west)), ({"zone": "East"}, ring(east))])})
+    write_case("plan-not-utf8", {"plan.toml": plan_text("plan-not-utf8", title='"Pellow Tarn caf\u00e9"').encode("cp1252"),
+                                 "water.geojson": tarn_layer()}, ["not UTF-8", "Save it as UTF-8"])
+
 
 # --------------------------------------------------------------------------- results cases
 def _rows(schedule: str) -> tuple[list[str], list[dict]]:
