@@ -34,6 +34,8 @@ BASE = Path(tempfile.gettempdir())
 # --------------------------------------------------------------------------- value strategies
 names = st.text(st.characters(codec="utf-8", exclude_categories=("Cs",)), min_size=1, max_size=12).filter(
     lambda s: s.strip() != "")
+# stratum names as geosample.names normalises them (one line, NFC, single plain spaces, trimmed)
+stratum_names = names.filter(lambda s: _is_normal_name(s))
 texts = st.text(st.characters(codec="utf-8", exclude_categories=("Cs",)), max_size=12)
 positive = st.one_of(st.integers(1, 10**6), st.floats(1e-6, 1e6, allow_nan=False))
 nonneg = st.one_of(st.integers(0, 10**6), st.floats(0, 1e6, allow_nan=False))
@@ -44,6 +46,16 @@ minutes = st.one_of(st.integers(0, 1440), st.floats(0, 1440, allow_nan=False))
 speeds = st.one_of(st.integers(1, 500), st.floats(0.1, 500, allow_nan=False))
 ZONES = ("UTC", "America/Chicago", "Europe/Berlin", "Australia/Hobart", "Pacific/Auckland")
 WINDOW_ENDS = ("sunrise", "sunrise+60", "sunset-120", "sunset", "07:00", "15:00", "noon")
+
+
+def _is_normal_name(s: str) -> bool:
+    from geosample.errors import SettingError
+    from geosample.names import stratum_name
+
+    try:
+        return stratum_name(s) == s
+    except SettingError:
+        return False
 
 
 def _opt(draw, strategy, p=st.booleans()):
@@ -76,7 +88,7 @@ def valid_plans(draw) -> dict:
         area.update(strata="shore-bands", bands_m=draw(st.lists(nonneg, min_size=1, max_size=4)))
     elif strata == "zones":
         area.update(strata="zones", zones=draw(posint))
-    area["remainder"] = _opt(draw, names)
+    area["remainder"] = _opt(draw, stratum_names)
     bound = draw(st.sampled_from(BOUNDS))
     statistic = survey["statistic"] or "mean"
     scale = positive if statistic == "mean" else st.floats(1e-3, 10, allow_nan=False)
@@ -91,8 +103,9 @@ def valid_plans(draw) -> dict:
             "sides": "one" if bound == "cantelli" else _opt(draw, st.sampled_from(("two", "one"))),
             "allocation": _opt(draw, st.sampled_from(ALLOCATIONS)), "min_per_stratum": _opt(draw, posint),
             "n": _opt(draw, posint),
-            "strata": draw(st.dictionaries(names, st.fixed_dictionaries(
-                {}, optional={k: (positive if k == "cost" else scale) for k in STRATUM_KEYS}), max_size=2))}
+            "strata": draw(st.dictionaries(stratum_names, st.fixed_dictionaries(
+                {}, optional={k: (positive if k == "cost" else scale) for k in STRATUM_KEYS}), max_size=2).filter(
+                lambda d: len({k.casefold() for k in d}) == len(d)))}
     drawn = {"method": _opt(draw, st.sampled_from(DRAW_METHODS)), "reserve": _opt(draw, st.floats(0, 10)),
              "spacing_m": _opt(draw, positive)}
     seed_kind = draw(st.sampled_from(("none", "seed", "text")))
