@@ -115,3 +115,32 @@ def test_absurd_sizes_exit_2_naming_the_option(capsys, args, words):
     code, out, err = run(capsys, *args)
     assert code == 2, out + err
     assert words in err and "Traceback" not in err
+
+
+def test_field_days_sizing_prints_days_visits_and_what_it_rests_on(capsys):
+    # CHECKS.md "Two-stage designs": range 80, d = 16, 16 days -> Chebyshev error bound 0.39
+    code, out, _ = run(capsys, "--tolerance", "16", "--range", "80", "--days", "16", "--per-day", "4",
+                       "--confidence", "0.9")
+    assert code == 0
+    assert out.startswith("16 field days x 4 visits a day = 64 visits") and "0.391" in out
+    assert "days: 16, visits per day: 4, visits: 64" in out and "rests on:" in out and "range alone" in out
+
+
+def test_field_days_with_components_and_costs(capsys):
+    code, out, _ = run(capsys, "--tolerance", "5", "--range", "80", "--bound", "t", "--sd-between-days", "6",
+                       "--sd-within-day", "15", "--cost-day", "200", "--cost-visit", "20", "--json")
+    assert code == 0
+    data = json.loads(out)
+    assert math.isclose(data["per_day_optimum"], 15 / 6 * math.sqrt(10))  # Brus 2022 ch. 7, computed
+    assert data["basis"] == "components" and data["visits"] == data["days"] * data["per_day"]
+    assert "assumption" in data["statement"]
+
+
+def test_field_days_bad_input_exits_2_naming_the_option(capsys):
+    code, _, err = run(capsys, "--tolerance", "5", "--range", "80", "--bound", "t", "--sd-between-days", "6")
+    assert code == 2 and "--sd-within-day" in err and "Traceback" not in err
+
+
+def test_independent_samples_say_how_to_count_days(capsys):
+    code, out, _ = run(capsys, "--tolerance", "15", "--range", "80")
+    assert code == 0 and "--per-day" in out
