@@ -15,7 +15,13 @@ What is read
   then latin-1, with a note. Files with NUL bytes (UTF-16 "Unicode text", a
   workbook saved with a .csv name) are refused.
 - Delimiter: comma, semicolon or tab, detected on the header line
-  (:class:`csv.Sniffer`). With semicolons a decimal comma (``12,5``) is read as 12.5.
+  (:class:`csv.Sniffer`), or given by a spreadsheet's first line ``sep=;`` (read and
+  skipped). With semicolons a decimal comma (``12,5``) is read as 12.5.
+- Refused with the row or column named: two columns with the same name (which one
+  holds the results cannot be known); a quote that is never closed where its cell
+  ends (the rows after it would be read as one cell); results that are not finite
+  or larger than :data:`MAX_RESULT` in absolute value; ``sampled_at`` outside the
+  years :data:`SAMPLED_YEARS` (with ``strict=False`` these rows are flagged instead).
 - Results: numbers; ``<10`` (below the detection limit: left-censored, enters at
   the limit) and ``>2419.6`` (above the method's upper limit: right-censored,
   enters at the limit), also written as qualifier ``<`` / ``>`` with the number in
@@ -71,6 +77,10 @@ __all__ = [
 
 #: Hours between ``planned_time`` and ``sampled_at`` beyond which a sample is flagged.
 TIME_TOLERANCE_H = 2.0
+#: Largest absolute result accepted: anything larger is a typing or unit mistake, and would overflow the sums.
+MAX_RESULT = 1e15
+#: Years a ``sampled_at`` may lie in (as a plan's season, ``geosample.limits.YEARS``).
+SAMPLED_YEARS = (1900, 2199)
 
 _MISSING = {"", "na", "n/a", "n.a.", "-", "\u2013", "\u2014", "not sampled", "none"}
 _ND = {"nd", "n.d.", "n/d", "not detected", "bdl", "<dl", "<lod"}
@@ -224,10 +234,11 @@ def decode_text(data: bytes, name: str = "results file") -> tuple[str, str, list
                 else "UTF-16 or binary, not CSV text")
         raise ResultsError(f"{name} cannot be read: it contains NUL bytes, so it is {kind}. Save it from the "
                            "spreadsheet as 'CSV UTF-8 (comma delimited)'.")
-    if data.startswith(b"\xef\xbb\xbf"):
-        return data[3:].decode("utf-8", errors="strict"), "utf-8-sig", []
+    bom = data.startswith(b"\xef\xbb\xbf")
+    if bom:
+        data = data[3:]
     try:
-        return data.decode("utf-8"), "utf-8", []
+        return data.decode("utf-8"), "utf-8-sig" if bom else "utf-8", []
     except UnicodeDecodeError as exc:
         where = exc.start
     for enc in ("cp1252", "latin-1"):
@@ -236,7 +247,8 @@ def decode_text(data: bytes, name: str = "results file") -> tuple[str, str, list
         except UnicodeDecodeError:
             continue
         line = data[:where].count(b"\n") + 1
-        return text, enc, [f"{name} is not UTF-8 (first non-UTF-8 byte on line {line}); it was read as {enc} "
+        after = " after its UTF-8 byte order mark (it was saved again in another encoding)" if bom else ""
+        return text, enc, [f"{name} is not UTF-8{after} (first non-UTF-8 byte on line {line}); it was read as {enc} "
                            "(Windows Western). Check accented names in the notes; save as 'CSV UTF-8' next time."]
     raise ResultsError(f"{name} cannot be decoded")  # pragma: no cover - latin-1 decodes every byte
 
@@ -249,6 +261,64 @@ def detect_delimiter(header: str) -> str:
         counts = {d: header.count(d) for d in (",", ";", "\t")}
         best = max(counts, key=counts.get)
         return best if counts[best] else ","
+
+
+def _sep_line(text: str) -> tuple[str, str, str]:
+    """Drop a spreadsheet's delimiter hint (a first line ``sep=;``) and use it; else detect the delimiter.
+
+    Returns ``(text without the hint, delimiter, note)``.
+    """
+    first, _, rest = text.partition("\n")
+    m = re.fullmatch(r"\s*\ufeff?\s*sep=(.)\s*", first, flags=re.IGNORECASE)
+    if m and m.group(1) in ",;\t|":
+        shown = {"\t": "a tab", ";": "semicolons", ",": "commas", "|": "bars"}[m.group(1)]
+        return rest, m.group(1), (f"its first line {first.strip()!r} (a spreadsheet's delimiter hint) was read: "
+                                  f"columns are separated by {shown}; the header is the next line")
+    lines = text.splitlines()
+    return text, detect_delimiter(lines[0] if lines else ""), ""
+
+
+def _read_table(text: str, delim: str, name: str) -> tuple[list[list[str]], str]:
+    """The CSV rows, or a message for a quote that is never closed (it swallows the rows after it)."""
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delim)
+    table: list[list[str]] = []
+    start = 1
+    try:
+        for cells in reader:
+            table.append(cells)
+            first_line, start = start, reader.line_num + 1
+            # a cell over several lines is fine (a note with a line break) unless a line in it looks like a row
+            ncols = len(table[0])
+            swallowed = [i for i, c in enumerate(cells) if ("\n" in c or "\r" in c) and any(
+                line.count(delim) >= max(2, ncols // 2) for line in c.splitlines()[1:])]
+            if swallowed:
+                i = swallowed[0]
+                header = table[0] if len(table) > 1 else []
+                col = f"column {_norm_header(header[i])!r}" if i < len(header) else f"column {i + 1}"
+                row = len(table)
+                return table, (f"{name}: row {row} has a quote (\") in {col} that is never closed where the cell "
+                               f"ends, so lines {first_line} to {reader.line_num} of the file were read as that one "
+                               "cell. Remove the stray quote, or close it, in that row (a value typed as \"12 "
+                               "is read as the start of a quoted text).")
+    except csv.Error as exc:
+        return table, f"{name} is not valid CSV (line {reader.line_num}: {exc}). Save it again from the spreadsheet."
+    if not table:
+        return table, f"{name} has no header row. Use the design's schedule.csv and keep its header row."
+    return table, ""
+
+
+def _check_header(header: list[str], name: str) -> None:
+    """Refuse two columns with the same name: which one holds the results cannot be known."""
+    seen: dict[str, int] = {}
+    for i, h in enumerate(header):
+        if not h:
+            continue
+        if h in seen:
+            cols = [j + 1 for j, x in enumerate(header) if x == h]
+            raise ResultsError(f"{name} has {len(cols)} columns named {h!r} (columns "
+                               f"{', '.join(map(str, cols[:-1]))} and {cols[-1]}); which one to read cannot be "
+                               "known. Keep one of them (rename or delete the others), then run again.")
+        seen[h] = i
 
 
 def _norm_header(h: str) -> str:
@@ -321,6 +391,8 @@ def _parse_time(text: str, tz: Any, visit_date: str) -> dt.datetime | None | str
             t = dt.datetime.fromisoformat(s.replace(" ", "T", 1) if "T" not in s else s)
     except ValueError:
         return "bad"
+    if not SAMPLED_YEARS[0] <= t.year <= SAMPLED_YEARS[1]:
+        return "implausible"
     if t.tzinfo is None and tz is not None:
         t = t.replace(tzinfo=tz)
     return t
@@ -373,17 +445,25 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
     assert isinstance(manifest, dict)
     path = Path(path)
     name = f"results file {str(path)!r}"
-    if not path.exists() or path.is_dir():
+    if not path.exists():
         raise InputFileError(f"{name} does not exist. Give the schedule.csv the crew filled in.")
-    text, encoding, notes = decode_text(path.read_bytes(), name)
-    header_line = text.splitlines()[0] if text.splitlines() else ""
-    delim = detect_delimiter(header_line)
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delim)
+    if path.is_dir():
+        raise InputFileError(f"{name} is a folder, not a file. Give the path of the CSV file the crew filled in "
+                             "(the design's schedule.csv with the 'result' column completed).")
     try:
-        table = list(reader)
-    except csv.Error as exc:
-        raise ResultsError(f"{name} is not valid CSV: {exc}.") from None
+        data = path.read_bytes()
+    except OSError as exc:
+        raise InputFileError(f"{name} cannot be read ({exc.strerror or exc}). Check that the file is readable by "
+                             "you and not locked by another program.") from None
+    text, encoding, notes = decode_text(data, name)
+    text, delim, sep_note = _sep_line(text)
+    if sep_note:
+        notes.append(f"{name}: {sep_note}")
+    table, problem = _read_table(text, delim, name)
+    if problem:
+        raise ResultsError(problem)
     header = [_norm_header(h) for h in table[0]]
+    _check_header(header, name)
     if "result" not in header or "site_id" not in header:
         missing = [c for c in ("site_id", "result") if c not in header]
         raise ResultsError(
@@ -416,6 +496,8 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
     dups: list[tuple[int, str, int]] = []
     nonpos: list[tuple[int, str]] = []
     bad_time: list[int] = []
+    far_time: list[tuple[int, str]] = []
+    huge: list[tuple[int, str]] = []
     mismatch: list[int] = []
     for k, cells in enumerate(table[1:]):
         row = k + 2
@@ -428,6 +510,9 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
         d = design.get(sid)
         if status == "value" and statistic == "geomean" and value is not None and value <= 0:
             nonpos.append((row, raw))
+            status, value = "bad", None
+        if status == "value" and value is not None and abs(value) > MAX_RESULT:
+            huge.append((row, raw))
             status, value = "bad", None
         if status == "bad" and not (raw.lower() in _ND):
             bad_rows.append((row, raw))
@@ -443,6 +528,9 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
         when = _parse_time(get(cells, "sampled_at"), tz, _cell((d or {}).get("visit_date")))
         if when == "bad":
             bad_time.append(row)
+            when = None
+        elif when == "implausible":
+            far_time.append((row, get(cells, "sampled_at")))
             when = None
         if d is not None and "stratum" in col and get(cells, "stratum") and get(cells, "stratum") != _cell(
                 d.get("stratum")):
@@ -463,6 +551,8 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
                         + (f" and {len(bad_rows) - 12} more" if len(bad_rows) > 12 else "")
                         + (" (log10 needs values above 0 for a geometric mean: write a value at or below the "
                            "detection limit as '<1')" if nonpos else "")
+                        + (f" (a result larger than {MAX_RESULT:g} in absolute value is a typing or unit mistake: "
+                           "write the laboratory's number in the units of the plan)" if huge else "")
                         + (" (with commas between columns a decimal comma cannot be told from a column break: "
                            "use a decimal point)" if delim == "," else ""))
     if unknown:
@@ -471,6 +561,11 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
     if dups:
         problems.append("duplicated site ids at " + "; ".join(f"row {r}: {s!r} (first at row {f})"
                                                              for r, s, f in dups[:12]))
+    if far_time:
+        problems.append(f"sampled_at outside the years {SAMPLED_YEARS[0]} to {SAMPLED_YEARS[1]} at "
+                        + "; ".join(f"row {r}: {v!r}" for r, v in far_time[:12])
+                        + (f" and {len(far_time) - 12} more" if len(far_time) > 12 else "")
+                        + " (write the date and time the sample was taken)")
     if problems and strict:
         raise ResultsError(f"{name} has problems: " + ". ".join(problems) + ". Correct those rows (results are "
                            "numbers, '<limit', '>limit' or 'ND'; site ids as in the design's schedule.csv), or "
@@ -484,6 +579,10 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
     if dups:
         flags.append(Flag("duplicate_site", "duplicated site ids: only the first row of each counts",
                           tuple(r for r, _, _ in dups)))
+    if far_time:
+        flags.append(Flag("sampled_at_implausible", f"sampled_at outside the years {SAMPLED_YEARS[0]} to "
+                          f"{SAMPLED_YEARS[1]}: these samples are used without the check of their time against the "
+                          "plan", tuple(r for r, _ in far_time)))
     if bad_time:
         flags.append(Flag("sampled_at_unreadable", "sampled_at could not be read (write ISO 8601, e.g. "
                           "2027-06-03T09:40-05:00 or 2027-06-03 09:40 in local time; a spreadsheet may have "

@@ -144,6 +144,49 @@ def test_results_case(case, demo_design, tmp_path, capsys):
         assert after == before
 
 
+@pytest.mark.parametrize("where, overwrite, words", [
+    ("missing/next.toml", False, "does not exist: create it first"),
+    ("missing/next.toml", True, "does not exist: create it first"),
+    ("a-folder", False, "is a folder"),
+    ("a-folder", True, "is a folder"),  # was an IsADirectoryError after all the work
+    ("results.csv", True, "not the results file being read"),
+    ("DESIGN/next.toml", False, "outside the design folder"),
+])
+def test_next_plan_paths_are_checked_before_any_work(demo_design, tmp_path, capsys, where, overwrite, words):
+    schedule = (demo_design / "schedule.csv").read_text(encoding="utf-8")
+    results = tmp_path / "results.csv"
+    results.write_bytes(make_bad.results_cp1252(schedule))
+    (tmp_path / "a-folder").mkdir()
+    (tmp_path / "a-folder" / "notes.txt").write_text("field notes", encoding="utf-8")
+    html = demo_design / "assessment.html"
+    if html.exists():
+        html.unlink()
+    before_design, before_here = _tree_hashes(demo_design), _tree_hashes(tmp_path)
+    target = str(demo_design / "next.toml") if where.startswith("DESIGN/") else str(tmp_path / where)
+    code, text = _run(["assess", str(demo_design), str(results), "--next-plan", target]
+                      + (["--overwrite"] if overwrite else []), capsys)
+    assert code == 2, text
+    assert "Traceback" not in text and "--next-plan" in text and words in text
+    assert _tree_hashes(demo_design) == before_design and _tree_hashes(tmp_path) == before_here
+
+
+def test_a_results_path_that_is_a_folder_says_so(demo_design, tmp_path, capsys):
+    code, text = _run(["assess", str(demo_design), str(tmp_path)], capsys)
+    assert code == 2 and "is a folder, not a file" in text and "does not exist" not in text
+
+
+def test_a_multi_line_note_is_not_taken_for_an_open_quote(demo_design, tmp_path):
+    # a note with a line break (Alt+Enter in a spreadsheet cell) is a quoted cell over two lines: RFC 4180, 2.6
+    from geosample.results import read_results
+
+    header, rows = make_bad._filled((demo_design / "schedule.csv").read_text(encoding="utf-8"))
+    rows[0]["notes"] = "Crew A, shore launch\nwind 3 Bft, waves 0.2 m"
+    path = tmp_path / "r.csv"
+    path.write_bytes(make_bad._csv(header, rows).encode("utf-8"))
+    res = read_results(path, demo_design)
+    assert dict(res.records[0].extra)["notes"] == "Crew A, shore launch\nwind 3 Bft, waves 0.2 m"
+
+
 def _primary_results(schedule: str) -> list[float]:
     rows = list(csv.DictReader(io.StringIO(schedule)))
     return [r for r in rows if r["role"] == "primary"]

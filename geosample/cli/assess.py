@@ -38,14 +38,12 @@ def assess_command(out: Path, results: Path, as_json: bool, next_plan: Path | No
     Writes OUT/assessment.html (replaced on every run). Nothing else in OUT
     changes. Exit code 2 with the row numbers when the results file has problems.
     """
-    from ..errors import OutputExistsError
     from ..export.assessment import HTML_NAME, write_assessment, write_next_plan
     from ..results import read_design_folder, read_results
     from ..stats.assessment import assess
 
-    if next_plan is not None and next_plan.exists() and not overwrite:
-        raise OutputExistsError(f"--next-plan file {str(next_plan)!r} exists already. Choose another file name, "
-                                "or add --overwrite to replace it.")
+    if next_plan is not None:
+        _check_next_plan(next_plan, out, results, overwrite)
     manifest, rows = read_design_folder(out)
     res = read_results(results, manifest, rows, strict=not lenient)
     a = assess(res, manifest, adjust=adjust)
@@ -64,6 +62,33 @@ def assess_command(out: Path, results: Path, as_json: bool, next_plan: Path | No
     click.echo(summary_text(a))
     click.echo("")
     click.echo(f"Wrote {Path(out) / HTML_NAME}" + (f" and {written['next_plan']}" if "next_plan" in written else ""))
+
+
+def _check_next_plan(path: Path, out: Path, results: Path, overwrite: bool) -> None:
+    """Refuse a --next-plan path that cannot be written, before any work (exit 2, the fix named)."""
+    from ..errors import OutputExistsError, SettingError
+
+    shown = str(path)
+    if path.is_dir():
+        raise SettingError("--next-plan", shown, "the path of a plan file to write, e.g. next-plan.toml",
+                           fix=f"{shown!r} is a folder: give a file name in it, e.g. {str(path / 'next-plan.toml')!r}"
+                               " (a folder is never replaced, with or without --overwrite)")
+    parent = path.parent
+    if not parent.is_dir():
+        what = "is not a folder" if parent.exists() else "does not exist"
+        raise SettingError("--next-plan", shown, "a file in an existing folder",
+                           fix=f"the folder {str(parent)!r} {what}: create it first, or choose another place")
+    target = path.resolve()
+    if out.is_dir() and out.resolve() in target.parents:
+        raise SettingError("--next-plan", shown, "a file outside the design folder",
+                           fix=f"write it beside the design, not into {str(out)!r}: the design folder holds only "
+                               "what 'geosample plan' wrote (and assessment.html)")
+    if results.exists() and target == results.resolve():
+        raise SettingError("--next-plan", shown, "a new file, not the results file being read",
+                           fix="choose another file name, e.g. next-plan.toml")
+    if path.exists() and not overwrite:
+        raise OutputExistsError(f"--next-plan file {shown!r} exists already. Choose another file name, "
+                                "or add --overwrite to replace it.")
 
 
 def summary_text(a) -> str:

@@ -300,11 +300,118 @@ def results_spreadsheet_dates(schedule: str) -> bytes:
     return _csv(header, rows).encode("utf-8")
 
 
+def _first_primary(schedule: str, **cells) -> bytes:
+    """The filled-in results with ``cells`` written into the first data row (row 2, a primary site)."""
+    header, rows = _filled(schedule)
+    assert rows[0]["role"] == "primary"
+    rows[0].update(cells)
+    return _csv(header, rows).encode("utf-8")
+
+
+def results_bom_cp1252(schedule: str) -> bytes:
+    """A BOM, then Windows-1252 bytes: a file saved as UTF-8 once, then edited and saved as ANSI."""
+    return b"\xef\xbb\xbf" + _csv(*_filled(schedule)).encode("cp1252")
+
+
+def results_far_future_time(schedule: str) -> bytes:
+    return _first_primary(schedule, sampled_at="9999-12-31T23:59-12:00")
+
+
+def results_huge_value(schedule: str) -> bytes:
+    return _first_primary(schedule, result="1e308")
+
+
+def results_nan_value(schedule: str) -> bytes:
+    return _first_primary(schedule, result="nan")
+
+
+def results_infinite_value(schedule: str) -> bytes:
+    return _first_primary(schedule, result="1e400")
+
+
+def results_two_result_columns(schedule: str) -> bytes:
+    """A second 'result' column at the end (the lab's numbers pasted beside the crew's)."""
+    header, rows = _filled(schedule)
+    out = io.StringIO()
+    w = csv.writer(out, lineterminator="\r\n")
+    w.writerow(header + ["result"])
+    for r in rows:
+        w.writerow([r[h] for h in header] + [str(float(r["result"]) * 2) if r["result"] else ""])
+    return out.getvalue().encode("utf-8")
+
+
+def results_unterminated_quote(schedule: str) -> bytes:
+    """Row 3's result typed as '"12' : the quote is never closed, so the rest of the file is one cell."""
+    header, rows = _filled(schedule, note="Crew A")
+    lines = _csv(header, rows).split("\r\n")
+    cells = lines[2].split(",")
+    cells[header.index("result")] = '"12'
+    lines[2] = ",".join(cells)
+    return "\r\n".join(lines).encode("utf-8")
+
+
+def results_sep_line(schedule: str) -> bytes:
+    """A spreadsheet's delimiter hint 'sep=;' as the first line, then semicolons."""
+    header, rows = _filled(schedule, note="Crew A")
+    return ("sep=;\r\n" + _csv(header, rows, delimiter=";")).encode("utf-8")
+
+
+def results_empty(schedule: str) -> bytes:
+    return b""
+
+
+def results_workbook(schedule: str) -> bytes:
+    """The first bytes of a zipped workbook saved under a .csv name."""
+    return b"PK\x03\x04\x14\x00\x06\x00\x08\x00\x00\x00!\x00" + b"\x00" * 32
+
+
+def results_unknown_site(schedule: str) -> bytes:
+    return _first_primary(schedule, site_id="XX-999")
+
+
+def results_duplicate_site(schedule: str) -> bytes:
+    header, rows = _filled(schedule)
+    rows[1]["site_id"] = rows[0]["site_id"]
+    return _csv(header, rows).encode("utf-8")
+
+
+def results_no_result_column(schedule: str) -> bytes:
+    header, rows = _filled(schedule)
+    header = [("value" if h == "result" else h) for h in header]
+    for r in rows:
+        r["value"] = r.pop("result")
+    return _csv(header, rows).encode("utf-8")
+
+
+def results_header_only(schedule: str) -> bytes:
+    header, _ = _rows(schedule)
+    return _csv(header, []).encode("utf-8")
+
+
+def results_nothing_filled(schedule: str) -> bytes:
+    return schedule.encode("utf-8")
+
+
 RESULTS_CASES = {
     "results-utf16": results_utf16,
     "results-cp1252": results_cp1252,
     "results-semicolon": results_semicolon,
     "results-spreadsheet-dates": results_spreadsheet_dates,
+    "results-bom-cp1252": results_bom_cp1252,
+    "results-far-future-time": results_far_future_time,
+    "results-huge-value": results_huge_value,
+    "results-nan-value": results_nan_value,
+    "results-infinite-value": results_infinite_value,
+    "results-two-result-columns": results_two_result_columns,
+    "results-unterminated-quote": results_unterminated_quote,
+    "results-sep-line": results_sep_line,
+    "results-empty": results_empty,
+    "results-workbook": results_workbook,
+    "results-unknown-site": results_unknown_site,
+    "results-duplicate-site": results_duplicate_site,
+    "results-no-result-column": results_no_result_column,
+    "results-header-only": results_header_only,
+    "results-nothing-filled": results_nothing_filled,
 }
 RESULTS_EXPECT = {
     "results-utf16": (["NUL bytes", "UTF-16", "CSV UTF-8"], 2),
@@ -312,6 +419,21 @@ RESULTS_EXPECT = {
     "results-semicolon": (["semicolons", "decimal commas"], 0),
     "results-spreadsheet-dates": (["sampled_at could not be read", "ISO 8601",
                                    "spreadsheet may have rewritten the dates"], 0),
+    "results-bom-cp1252": (["not UTF-8", "cp1252", "after its UTF-8 byte order mark"], 0),
+    "results-far-future-time": (["sampled_at", "row 2", "9999-12-31T23:59-12:00", "1900 to 2199"], 2),
+    "results-huge-value": (["row 2", "'1e308'", "1e+15"], 2),
+    "results-nan-value": (["unreadable results", "row 2: 'nan'"], 2),
+    "results-infinite-value": (["unreadable results", "row 2: '1e400'"], 2),
+    "results-two-result-columns": (["2 columns named 'result'", "columns 13 and 18"], 2),
+    "results-unterminated-quote": (["row 3", "quote", "never closed", "column 'result'"], 2),
+    "results-sep-line": (["sep=;", "semicolons"], 0),
+    "results-empty": (["is empty"], 2),
+    "results-workbook": (["spreadsheet workbook", "CSV UTF-8"], 2),
+    "results-unknown-site": (["site ids not in the design", "row 2: 'XX-999'"], 2),
+    "results-duplicate-site": (["duplicated site ids", "row 3", "first at row 2"], 2),
+    "results-no-result-column": (["no 'result' column", "'value'"], 2),
+    "results-header-only": (["a header but no data rows"], 2),
+    "results-nothing-filled": (["no numeric result the estimate can use"], 2),
 }
 
 
