@@ -167,10 +167,16 @@ def read_manifest(folder: str | Path) -> dict:
         raise InputFileError(f"{str(folder)!r} has no {MANIFEST}: it is not a design folder written by "
                              "'geosample plan'.")
     try:
-        return json.loads(path.read_text(encoding="utf-8"))
-    except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-        raise InputFileError(f"{str(path)!r} is not a readable manifest ({exc}). It was edited or damaged; "
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (ValueError, RecursionError, OSError) as exc:  # bad JSON or UTF-8, a 5000-digit number, deep nesting
+        reason = "nested too deeply" if isinstance(exc, RecursionError) else (
+            exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)[:200])
+        raise InputFileError(f"{str(path)!r} is not a readable manifest ({reason}). It was edited or damaged; "
                              "write the design again with 'geosample plan'.") from None
+    if not isinstance(data, dict):
+        raise InputFileError(f"{str(path)!r} is not a manifest: it holds a JSON {type(data).__name__}, not an "
+                             "object. It was edited or damaged; write the design again with 'geosample plan'.")
+    return data
 
 
 # --------------------------------------------------------------------------- verify

@@ -1,4 +1,5 @@
-"""Property-based tests (hypothesis) of the two readers of user files: the plan loader and the results reader.
+"""Property-based tests (hypothesis) of the readers of user files: the plan loader, the results reader and the
+manifest reader.
 
 - Random valid plans, built key by key from the accepted values of ``geosample.plan.SCHEMA``
   and written as TOML, load; dumping the loaded settings and loading them again gives
@@ -7,6 +8,9 @@
   range, garbage text) raise a ``GeosampleError``, never another exception.
 - Random CSV text given to ``geosample.results.read_results`` with a real design either
   gives a ``Results`` or raises a ``GeosampleError``, never another exception.
+- Any bytes as a design folder's ``manifest.json`` (random bytes, JSON of any shape, nesting
+  past the recursion limit, numbers past int's digit limit, a cut file) give a manifest
+  (a dict) from ``geosample.audit.read_manifest`` or a ``GeosampleError``.
 
 The TOML text is written with ``geosample.export.assessment.toml_dumps``; what is
 checked is the loader, and the round trip also checks that writer against the
@@ -290,3 +294,43 @@ def test_results_reader_gives_results_or_a_geosample_error(design, data):
     event("read")
     assert isinstance(res, Results)
     assert any(r.used for r in res.records)
+
+
+# --------------------------------------------------------------------------- manifest reader
+def _manifest_bytes():
+    """Any bytes, JSON of any shape, deeply nested JSON, huge numbers, and a real manifest cut anywhere."""
+    json_values = st.recursive(st.one_of(st.none(), st.booleans(), st.integers(), st.floats(), texts),
+                               lambda inner: st.one_of(st.lists(inner, max_size=3),
+                                                       st.dictionaries(texts, inner, max_size=3)), max_leaves=10)
+    return st.one_of(
+        st.binary(max_size=300),
+        json_values.map(lambda v: __import__("json").dumps(v).encode()),
+        st.integers(1, 100_000).map(lambda k: b"[" * k + b"]" * k),  # nesting past the recursion limit
+        st.integers(4400, 6000).map(lambda k: b'{"seed": ' + b"9" * k + b"}"),  # past int's digit limit
+        st.sampled_from((b"\xef\xbb\xbf{}", b"\xff\xfe{\x00}\x00", b"NaN", b'{"a": Infinity}', b"")),
+    )
+
+
+@settings(max_examples=int(__import__("os").environ.get("GS_PROP_N", 80)), deadline=None,
+          suppress_health_check=[HealthCheck.too_slow])
+@given(_manifest_bytes(), st.booleans())
+def test_manifest_reader_gives_a_manifest_or_a_geosample_error(content, cut):
+    from geosample.audit import MANIFEST, read_manifest
+
+    with tempfile.TemporaryDirectory() as tmp:
+        (Path(tmp) / MANIFEST).write_bytes(content[: len(content) // 2] if cut else content)
+        try:
+            manifest = read_manifest(tmp)
+        except GeosampleError as exc:
+            event(f"refused: {type(exc).__name__}")
+            return
+    event("read")
+    assert isinstance(manifest, dict)
+
+
+def test_a_manifest_that_is_a_folder_is_a_geosample_error(tmp_path):
+    from geosample.audit import MANIFEST, read_manifest
+
+    (tmp_path / MANIFEST).mkdir()
+    with pytest.raises(GeosampleError):
+        read_manifest(tmp_path)
