@@ -110,14 +110,13 @@ def registered_seed(digest: str, value: str) -> int:
 
 
 def printable(text: Any) -> str:
-    """Untrusted text for a terminal or report: control and format characters escaped as ``\\xNN``/``\\uNNNN``."""
-    out = []
-    for c in str(text):
-        if unicodedata.category(c) in ("Cc", "Cf", "Zl", "Zp") or c == "\\":
-            out.append(c.encode("unicode_escape").decode("ascii") if c != "\\" else "\\\\")
-        else:
-            out.append(c)
-    return "".join(out)
+    """Untrusted text for a terminal or report: control and format characters escaped as ``\\xNN``/``\\uNNNN``.
+
+    >>> printable("a\\x1b[31mb")
+    'a\\\\x1b[31mb'
+    """
+    return "".join(c.encode("unicode_escape").decode("ascii") if unicodedata.category(c) in ("Cc", "Cf", "Zl", "Zp")
+                   else c for c in str(text))
 
 
 # --------------------------------------------------------------------------- the registration file
@@ -184,8 +183,12 @@ def _parse_date(text: str, what: str) -> dt.date:
 
 
 def write_registration(plan_path: str | Path, out: str | Path, *, public_source: str, public_date: str | dt.date,
-                       now: dt.datetime | None = None) -> Registration:
+                       now: dt.datetime | None = None, progress: Any = None) -> Registration:
     """Register a plan: write ``out`` (refused if it exists) and return it as read back.
+
+    The plan is first designed once with a throwaway seed (nothing shown or kept), so that a
+    plan that cannot be drawn (an infeasible size, a broken layer) is refused before it is
+    registered.
 
     Raises
     ------
@@ -233,6 +236,7 @@ def write_registration(plan_path: str | Path, out: str | Path, *, public_source:
             raise InputFileError(f"input {label} ({names[label]!r} in {str(plan_path)!r}) does not exist or is not "
                                  "a file. Fix the path in the plan before registering it.")
         inputs[label] = {"file": names[label], "sha256": sha256_file(p)}
+    _trial(plan, progress)
     data = registration_data(
         plan_name=Path(plan_path).name, plan_sha256=plan.sha256, inputs=inputs,
         content_sha256=content_key(plan.settings, {k: v["sha256"] for k, v in inputs.items()}),
@@ -248,6 +252,17 @@ def write_registration(plan_path: str | Path, out: str | Path, *, public_source:
         raise InputFileError(f"cannot write the registration {str(out)!r}: {exc.strerror}. Choose a folder you "
                              "can write to.") from None
     return read_registration(out)
+
+
+def _trial(plan: Any, progress: Any = None) -> None:
+    """Make the design once with a throwaway seed, so a plan that cannot be drawn is refused now.
+
+    The trial's sites are neither shown nor kept nor recorded, and say nothing about the
+    registered draw, whose seed depends on a value that does not exist yet.
+    """
+    from .design import load_layers, make_design
+
+    make_design(plan, layers=load_layers(plan), seed=0, seed_source="os", progress=progress)
 
 
 def _refuse_fixed_seed(settings: dict, source: str, command: str) -> None:

@@ -312,3 +312,52 @@ def test_the_registration_file_holds_what_the_docs_say(registered):
     assert "geosample-seed/1" in data["seed_rule"]
     docs = Path(__file__).resolve().parents[1] / "docs" / "registration.md"
     assert "geosample-seed/1" in docs.read_text(encoding="utf-8")
+
+
+def test_a_plan_that_cannot_be_drawn_is_refused_before_it_is_registered(tmp_path, monkeypatch, capsys):
+    plan = _unseeded_plan(tmp_path / "in")
+    plan.write_text(plan.read_text(encoding="utf-8") + "\n[size.strata.Nowhere]\nsd = 3\n", encoding="utf-8")
+    _clock(monkeypatch, BEFORE)
+    assert _register(plan, tmp_path / "r.json") == 2
+    err = capsys.readouterr().err
+    assert "Nowhere" in err and "Traceback" not in err
+    assert not (tmp_path / "r.json").exists()
+
+
+def _hand_made(tmp_path: Path, value: str = "7 8 9") -> tuple[Path, dict]:
+    """A registration file and the manifest entries a registered draw would have, built by hand."""
+    reg = tmp_path / "registration.json"
+    data = {"format": "geosample-registration/1", "plan": {"file": "p.toml", "sha256": "1" * 64},
+            "inputs": {"water": {"file": "w.geojson", "sha256": "2" * 64}}, "content_sha256": "3" * 64,
+            "public_value": {"source": "Invented beacon", "date": "2027-01-02"}}
+    reg.write_bytes(registry.registration_bytes(data))
+    d = hashlib.sha256(reg.read_bytes()).hexdigest()
+    seed = int.from_bytes(hashlib.sha256(f"geosample-seed/1\n{d}\n{value}".encode()).digest(), "big")
+    manifest = {"seed": str(seed), "seed_source": "registered", "plan": {"sha256": "1" * 64},
+                "inputs": {"water": {"sha256": "2" * 64}},
+                "registration": {"sha256": d, "public_source": "Invented beacon", "public_date": "2027-01-02",
+                                 "public_value": value, "file": "registration.json"}}
+    return reg, manifest
+
+
+def test_check_manifest_accepts_a_consistent_registered_manifest(tmp_path):
+    reg, manifest = _hand_made(tmp_path)
+    assert registry.check_manifest(tmp_path, manifest) == []
+    assert registry.check_against(manifest, registry.read_registration(reg)) == []
+    assert registry.check_manifest(tmp_path, {"registration": None, "seed": "5"}) == []
+
+
+def test_check_manifest_names_each_forgery(tmp_path):
+    reg, manifest = _hand_made(tmp_path)
+    forged = json.loads(json.dumps(manifest))
+    forged["inputs"]["water"]["sha256"] = "4" * 64
+    assert any("input water" in d for d in registry.check_manifest(tmp_path, forged))
+    forged = json.loads(json.dumps(manifest))
+    forged["registration"]["public_value"] = "7 8 9\x1b[2J"
+    diffs = registry.check_manifest(tmp_path, forged)
+    assert diffs and not any("\x1b" in d for d in diffs)  # control characters never reach the terminal
+    forged = json.loads(json.dumps(manifest))
+    forged["registration"]["file"] = "../../etc/passwd"
+    assert any("not a plain file name" in d for d in registry.check_manifest(tmp_path, forged))
+    reg.unlink()
+    assert any("registration copy" in d for d in registry.check_manifest(tmp_path, manifest))

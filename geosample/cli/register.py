@@ -29,11 +29,17 @@ def register_command(plan_file: Path, out: Path, public_source: str, public_date
     draw with 'geosample plan PLAN.toml -o OUT --registration REGISTRATION.json
     --public-value "..."' and let them check with 'geosample verify OUT
     --registration REGISTRATION.json'. The plan must not fix draw.seed or
-    draw.seed_text. See docs/registration.md.
+    draw.seed_text. The plan is designed once with a throwaway seed first, so a
+    plan that cannot be drawn is refused before it is registered (nothing of that
+    trial is shown or kept). See docs/registration.md.
     """
     from ..registration import printable, write_registration
 
-    reg = write_registration(plan_file, out, public_source=public_source, public_date=public_date)
+    from ._progress import steps
+
+    with steps("geosample register") as progress:
+        reg = write_registration(plan_file, out, public_source=public_source, public_date=public_date,
+                                 progress=progress)
     if as_json:
         echo_json({"registration": str(out), "sha256": reg.sha256, "plan_sha256": reg.plan_sha256,
                    "inputs": reg.inputs, "content_sha256": reg.content_sha256,
