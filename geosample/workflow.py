@@ -151,7 +151,7 @@ def run_plan(plan_path: str | Path, out: str | Path, *, overwrite: bool = False,
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
-    written = {name: out / Path(p).name for name, p in files.items()}
+    written = {name: out / name for name in files}
     written["manifest.json"] = out / "manifest.json"
     # (the frame's warnings were logged by geometry as they arose)
     for w in tuple(design.draw.warnings) + tuple(design.schedule.warnings):

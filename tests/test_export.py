@@ -241,8 +241,9 @@ def _digests(files: dict[str, Path]) -> dict[str, str]:
     return {name: hashlib.sha256(Path(p).read_bytes()).hexdigest() for name, p in files.items()}
 
 
-def test_package_writes_the_five_files(package):
-    assert list(package) == list(PACKAGE_FILES)
+def test_package_writes_the_files_then_the_days(package):
+    assert list(package)[:len(PACKAGE_FILES)] == list(PACKAGE_FILES)
+    assert all(k.startswith("days/") for k in list(package)[len(PACKAGE_FILES):])
     assert all(Path(p).exists() and Path(p).stat().st_size > 0 for p in package.values())
 
 

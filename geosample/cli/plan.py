@@ -79,5 +79,8 @@ def _summary(run, as_json: bool) -> None:
     if d.draw_count > 1:
         click.echo("  Note: this plan has been drawn before. The report says so: re-drawing until the sites look "
                    "convenient defeats the randomisation.")
-    click.echo("  Files: " + ", ".join(sorted(run.files)))
+    top = sorted(n for n in run.files if "/" not in n)
+    days = sorted({n.split("/", 1)[0] + "/" for n in run.files if "/" in n})
+    click.echo("  Files: " + ", ".join(top + [f"{d} ({sum(1 for n in run.files if n.startswith(d))} files: a GPX, "
+                                               "a CSV and a printable sheet per field day)" for d in days]))
     click.echo(f"  Check it any time with: geosample verify {run.folder}")

@@ -7,7 +7,9 @@
 - ``sites.gpx`` (:mod:`.gpx`): GPX 1.1 waypoints and one route per crew trip;
 - ``map.html`` (:mod:`.map`): a self-contained map that works with no network;
 - ``report.html`` (:mod:`.report`): why this many samples, how they were drawn, what a
-  result may claim, and field cautions.
+  result may claim, and field cautions;
+- ``days/`` (:mod:`.days`): per field day a GPX (stops, reserves, route and track over
+  water), a CSV and a one-page printable field sheet (``day-03-2027-06-14.gpx`` ...).
 
 Every file is a function of the :class:`~geosample.model.Design` alone (no clock
 time, no random ids), so the same design gives byte-identical files: the
@@ -58,9 +60,11 @@ def write_package(design: "Design", folder: str | Path) -> dict[str, Path]:
     Returns
     -------
     dict
-        File name -> path, for :data:`PACKAGE_FILES`, in that order.
+        File name -> path, for :data:`PACKAGE_FILES` in that order, then the files of
+        ``days/`` (keys ``"days/<name>"``, relative to ``folder``).
         ``manifest.json`` is written afterwards by :func:`geosample.audit.write_manifest`.
     """
+    from .days import write_days
     from .geo import write_geojson
     from .gpx import write_gpx
     from .map import write_map
@@ -76,4 +80,6 @@ def write_package(design: "Design", folder: str | Path) -> dict[str, Path]:
         "map.html": write_map,
         "report.html": write_report,
     }
-    return {name: writer(design, folder / name) for name, writer in writers.items()}
+    out = {name: writer(design, folder / name) for name, writer in writers.items()}
+    out.update(write_days(design, folder))
+    return out
