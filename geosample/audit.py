@@ -140,6 +140,7 @@ def manifest_data(design: Design, folder: Path, *, final_folder: Path | None = N
                  "balance": design.draw.balance, "sites": len(design.draw.sites)},
         "itinerary": {"travel_minutes_per_site": design.schedule.travel_minutes_per_site,
                       "routes": len(design.schedule.routes)},
+        "days": dict(design.schedule.day_draw, times=design.schedule.time_draw),
         "sites_sha256": sites_digest(schedule_rows(design)),
         "libraries": library_versions(),
         "outputs": {name: sha256_file(p) for name, p in sorted((outputs or {}).items())},

@@ -285,21 +285,14 @@ def make_design(
                       min_minutes=t["minutes_on_site"])
     day_tuple = getattr(days, "days", days)
     day_warnings = tuple(getattr(days, "warnings", ()))
-    if t.get("field_days"):
-        from .randomizer.time import choose_field_days
-        from .rng import stream
-
-        day_tuple = choose_field_days(day_tuple, t["field_days"], rng=stream(seed, "time/crew-days"),
-                                      n_visits=len(draw.primaries()), per_day=t["per_day"])
     schedule = schedule_visits(draw, day_tuple, per_day=t["per_day"], seed=seed,
-                               minutes_on_site=t["minutes_on_site"])
+                               minutes_on_site=t["minutes_on_site"], field_days=t.get("field_days"))
     step("planning day routes")
     schedule = build_itinerary(schedule, frame, speed_kmh=t["speed_kmh"], minutes_on_site=t["minutes_on_site"],
                                holding_h=t["holding_h"], lab_minutes=t["lab_minutes"], seed=seed)
     from dataclasses import replace
 
-    schedule = replace(schedule, warnings=tuple(schedule.warnings) + day_warnings,
-                       calendar_days=len(getattr(days, "days", days)))
+    schedule = replace(schedule, warnings=tuple(schedule.warnings) + day_warnings)
     sizing = _sizing_summary(plan, frame, allocation)
     return Design(
         settings=settings,

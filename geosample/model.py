@@ -230,7 +230,13 @@ class SiteDraw:
 # --------------------------------------------------------------------------- time
 @dataclass(frozen=True)
 class FieldDay:
-    """A day the crew may go out, with its sampling window (timezone-aware datetimes)."""
+    """A day the crew may go out, with its sampling window (timezone-aware datetimes).
+
+    ``inclusion_p`` is the probability that the design draws this day as a field
+    day (a primary unit), ``k_s / K_s`` for its temporal stratum (see
+    ``randomizer.time.draw_days``); None before days are drawn. ``drawn`` says
+    whether this design drew it.
+    """
 
     date: dt.date
     window_start: dt.datetime
@@ -238,6 +244,8 @@ class FieldDay:
     sunrise: dt.datetime | None = None
     sunset: dt.datetime | None = None
     temporal_stratum: str = ""  # e.g. "2027-W23"
+    inclusion_p: float | None = None
+    drawn: bool = False
 
 
 @dataclass(frozen=True)
@@ -290,6 +298,8 @@ class Schedule:
     time_of_day: dict[str, dict[str, float]] = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
     calendar_days: int = 0  # allowed days in the season, before a crew-day budget (0: len(days))
+    day_draw: dict = field(default_factory=dict)  # how the field days were drawn (randomizer.time.DayDraw.record())
+    time_draw: str = ""  # how the planned times were drawn, one sentence (set by itinerary.build_itinerary)
 
 
 # --------------------------------------------------------------------------- design

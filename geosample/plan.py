@@ -222,8 +222,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
                         help="Temporal strata the visits are spread over."),
         "per_day": Key(_posint, "a whole number >= 1", 8, help="Most visits one crew makes in a day."),
         "field_days": Key(_posint, "a whole number >= 1", None,
-                          help="Crew days the season can afford (optional): that many days are drawn at random "
-                               "across the temporal strata, and the visits go on them."),
+                          help="Crew days the season can afford (optional; at least one per temporal stratum): "
+                               "that many days are drawn at random within the temporal strata, each day with a "
+                               "known probability, and the visits go on them. Without it, one day per visit while the season has days."),
         "speed_kmh": Key(_positive, "a positive number", 15.0, help="Travel speed over water, km/h."),
         "minutes_on_site": Key(_nonneg, "a number of minutes >= 0", 15.0, help="Time spent at each site."),
         "holding_h": Key(_positive, "a positive number of hours", 6.0, help="Most hours from collection to the lab."),

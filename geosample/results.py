@@ -481,7 +481,7 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
     # columns the crew added (and their sampler / notes) are kept with each record; the design's own columns
     # come from the design
     design_cols = {"site_id", "result", "qualifier", "sampled_at", "stratum", "role", "reserve_rank", "visit_date",
-                   "planned_time", "day", "route_order", "lat", "lon", "x", "y"}
+                   "planned_time", "day", "day_inclusion_p", "route_order", "lat", "lon", "x", "y"}
     extra_idx = [(h, i) for i, h in enumerate(header) if h not in design_cols and col.get(h) == i]
 
     def get(cells: list[str], key: str) -> str:

@@ -114,7 +114,8 @@ def build_design(names: tuple[str, str] = ("North basin", "South basin"), *, tit
         visits.append(Visit(sid, names[k], role, rank, x, y, lat, lon, **kw))
     days = tuple(
         FieldDay(d, dt.datetime(d.year, d.month, d.day, 7, 0, tzinfo=TZ), dt.datetime(d.year, d.month, d.day, 16, 0,
-                 tzinfo=TZ), temporal_stratum=f"{d.isocalendar().year}-W{d.isocalendar().week:02d}")
+                 tzinfo=TZ), temporal_stratum=f"{d.isocalendar().year}-W{d.isocalendar().week:02d}",
+                 inclusion_p=2 / 3, drawn=d != CALENDAR[1])  # 2 of the week's 3 days drawn
         for d in CALENDAR
     )
     d1, d2 = CALENDAR[0], CALENDAR[2]

@@ -1,6 +1,7 @@
 """The design pipeline's seeds and its pieces (geosample/design.py, geosample/rng.py)."""
 from __future__ import annotations
 
+import datetime as dt
 import hashlib
 import json
 
@@ -86,16 +87,29 @@ def test_changing_one_stratum_leaves_the_other_strata_sites(demo_plan, tmp_path)
 
 
 def test_field_days_budget_puts_the_visits_on_that_many_random_days(demo_plan, tmp_path):
-    _edit(demo_plan, "field_days = 16", "field_days = 12")
+    _edit(demo_plan, "field_days = 16", "field_days = 14")
     out = tmp_path / "design"
     assert main(["plan", str(demo_plan), "-o", str(out), "-q"]) == 0
     rows = [line.split(",") for line in (out / "schedule.csv").read_text().splitlines()[1:]]
     dates = [r[4] for r in rows if r[2] == "primary"]
     counts = {d: dates.count(d) for d in set(dates)}
-    assert len(counts) <= 12 and max(counts.values()) <= 8
-    # spread over the season (temporal strata are weeks): not all in one month
-    assert len({d[:7] for d in counts}) == 3
+    # exactly 14 days, one in each of the season's 14 ISO weeks (2027-W22 .. W35), visits as even as possible
+    assert len(counts) == 14 and max(counts.values()) - min(counts.values()) <= 1
+    assert len({dt.date.fromisoformat(d).isocalendar()[:2] for d in counts}) == 14
+    manifest = json.loads((out / "manifest.json").read_text())
+    drawn = [d for d in manifest["days"]["days"] if d["drawn"]]
+    assert sorted(d["date"] for d in drawn) == sorted(counts)
     assert main(["verify", str(out)]) == 0
+
+
+def test_field_days_fewer_than_the_temporal_strata_is_refused(demo_plan, tmp_path, capsys):
+    # 12 days cannot cover 14 weekly strata: days of the two weeks left out would have inclusion probability 0.
+    _edit(demo_plan, "field_days = 16", "field_days = 12")
+    assert main(["plan", str(demo_plan), "-o", str(tmp_path / "d")]) == 2
+    err = capsys.readouterr().err
+    assert "time.field_days = 12" in err and "14 temporal strata" in err and 'time.temporal = "month"' in err
+    _edit(demo_plan, "[time]", '[time]\ntemporal = "month"')
+    assert main(["plan", str(demo_plan), "-o", str(tmp_path / "m"), "-q"]) == 0
 
 
 def test_field_days_too_few_for_the_visits_is_refused_with_figures(demo_plan, tmp_path, capsys):

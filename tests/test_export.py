@@ -32,8 +32,8 @@ from geosample.export.report import claim_wording, render_report, report_context
 from geosample.export.table import neutralise_formula, schedule_rows, write_schedule
 
 # The pinned schedule.csv columns, copied from DEVELOPERS.md ("schedule.csv and manifest.json").
-PINNED = ["site_id", "stratum", "role", "reserve_rank", "visit_date", "planned_time", "day", "route_order",
-          "lat", "lon", "x", "y", "result", "qualifier", "sampled_at", "sampler", "notes"]
+PINNED = ["site_id", "stratum", "role", "reserve_rank", "visit_date", "planned_time", "day", "day_inclusion_p",
+          "route_order", "lat", "lon", "x", "y", "result", "qualifier", "sampled_at", "sampler", "notes"]
 XSS = "<script>alert(1)</script>"
 ALL_IDS = [s[0] for s in SITES]
 PRIMARY_IDS = [s[0] for s in SITES if s[2] == "primary"]
@@ -176,11 +176,12 @@ def test_csv_times_dates_and_day_numbers(package):
         assert r["visit_date"] == date.isoformat()
         assert r["day"] == str(visit_dates.index(date) + 1)
         assert r["route_order"] == str(order)
+        assert r["day_inclusion_p"] == "0.666666666667"  # the fixture's 2/3, 12 significant digits
     assert CALENDAR[1] not in visit_dates  # the day with no visits is not counted
     for sid in RESERVE_IDS:
         r = by_id[sid]
         assert r["role"] == "reserve"
-        assert r["visit_date"] == r["planned_time"] == r["day"] == r["route_order"] == ""
+        assert r["visit_date"] == r["planned_time"] == r["day"] == r["day_inclusion_p"] == r["route_order"] == ""
     for r in rows:
         assert r["result"] == r["qualifier"] == r["sampled_at"] == r["sampler"] == r["notes"] == ""
         assert re.fullmatch(r"-?\d+\.\d{6}", r["lat"]) and re.fullmatch(r"-?\d+\.\d{6}", r["lon"])

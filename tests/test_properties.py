@@ -226,7 +226,7 @@ def design(tmp_path_factory):
     return read_design_folder(out)
 
 
-COLUMNS = ("site_id", "stratum", "role", "reserve_rank", "visit_date", "planned_time", "day", "route_order", "lat",
+COLUMNS = ("site_id", "stratum", "role", "reserve_rank", "visit_date", "planned_time", "day", "day_inclusion_p", "route_order", "lat",
            "lon", "x", "y", "result", "qualifier", "sampled_at", "sampler", "notes")
 result_cells = st.one_of(
     st.integers(-5, 10**5).map(str), st.floats(allow_nan=True, allow_infinity=True).map(repr),

@@ -19,7 +19,7 @@ from geosample.errors import ResultsError
 from geosample.results import TIME_TOLERANCE_H, decode_text, detect_delimiter, parse_result, read_results
 
 SCHEDULE_COLUMNS = ["site_id", "stratum", "role", "reserve_rank", "visit_date", "planned_time", "day",
-                    "route_order", "lat", "lon", "x", "y", "result", "qualifier", "sampled_at", "sampler", "notes"]
+                    "day_inclusion_p", "route_order", "lat", "lon", "x", "y", "result", "qualifier", "sampled_at", "sampler", "notes"]
 
 PLAN_TOML = """
 [survey]
@@ -86,7 +86,7 @@ def write_design_folder(folder: Path, *, n=(6, 4, 3), reserves=3, travel=None, s
                 "site_id": f"{code}-{i + 1:03d}", "stratum": name, "role": "primary" if primary else "reserve",
                 "reserve_rank": 0 if primary else i - nh + 1,
                 "visit_date": date.isoformat() if date else "", "planned_time": planned.isoformat() if planned else "",
-                "day": k % 10 if primary else "", "route_order": 1 if primary else "",
+                "day": k % 10 if primary else "", "day_inclusion_p": 0.25 if primary else "", "route_order": 1 if primary else "",
                 "lat": 46.1 + 0.001 * k, "lon": -93.2 - 0.001 * k, "x": 500000 + 10 * k, "y": 5100000 + 10 * k,
                 "result": "", "qualifier": "", "sampled_at": "", "sampler": "", "notes": "",
             })

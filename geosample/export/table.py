@@ -5,11 +5,16 @@ then route order), then reserves (by stratum in frame order, then reserve rank).
 The columns are pinned (``DEVELOPERS.md``)::
 
     site_id, stratum, role, reserve_rank, visit_date, planned_time, day,
-    route_order, lat, lon, x, y, result, qualifier, sampled_at, sampler, notes
+    day_inclusion_p, route_order, lat, lon, x, y, result, qualifier, sampled_at,
+    sampler, notes
 
 - ``day`` is the 1-based number of the crew day: the rank of the visit's date
   among the dates that have visits (day 1 is the first day out). Reserves have
-  ``visit_date``, ``planned_time``, ``day`` and ``route_order`` blank.
+  ``visit_date``, ``planned_time``, ``day``, ``day_inclusion_p`` and
+  ``route_order`` blank.
+- ``day_inclusion_p`` is the probability that the design drew the visit's field
+  day (``FieldDay.inclusion_p``, ``k_s / K_s`` of its temporal stratum; see
+  ``randomizer.days``), written with up to 12 significant digits.
 - ``planned_time`` is ISO 8601 in the survey's time zone with its UTC offset,
   to the second (``2027-06-14T09:32:00-05:00``).
 - ``lat``/``lon`` are WGS 84 degrees with 6 decimals (about 0.1 m); ``x``/``y``
@@ -44,6 +49,7 @@ __all__ = [
     "ordered_visits",
     "day_numbers",
     "format_time",
+    "format_probability",
     "neutralise_formula",
     "reserve_label",
 ]
@@ -55,8 +61,8 @@ CREW_COLUMNS = ("result", "qualifier", "sampled_at", "sampler", "notes")
 
 #: Every column of ``schedule.csv``, in order.
 COLUMNS = (
-    "site_id", "stratum", "role", "reserve_rank", "visit_date", "planned_time", "day", "route_order",
-    "lat", "lon", "x", "y",
+    "site_id", "stratum", "role", "reserve_rank", "visit_date", "planned_time", "day", "day_inclusion_p",
+    "route_order", "lat", "lon", "x", "y",
 ) + CREW_COLUMNS
 
 #: Columns holding user text (the only ones neutralised against formula injection).
@@ -143,7 +149,18 @@ def day_numbers(visits: Iterable[Visit]) -> dict[dt.date, int]:
     return {d: i + 1 for i, d in enumerate(dates)}
 
 
-def _row(v: Visit, days: dict[dt.date, int]) -> dict[str, str]:
+def format_probability(p: float | None) -> str:
+    """A probability with up to 12 significant digits; empty for None.
+
+    Examples
+    --------
+    >>> format_probability(0.2), format_probability(1 / 3), format_probability(None)
+    ('0.2', '0.333333333333', '')
+    """
+    return "" if p is None else format(float(p), ".12g")
+
+
+def _row(v: Visit, days: dict[dt.date, int], inclusion: dict[int, float | None]) -> dict[str, str]:
     scheduled = v.role == "primary" and v.visit_date is not None
     row = {
         "site_id": v.site_id,
@@ -153,6 +170,7 @@ def _row(v: Visit, days: dict[dt.date, int]) -> dict[str, str]:
         "visit_date": v.visit_date.isoformat() if scheduled else "",
         "planned_time": format_time(v.planned_time) if scheduled else "",
         "day": str(days[v.visit_date]) if scheduled else "",
+        "day_inclusion_p": format_probability(inclusion.get(v.day_index)) if scheduled else "",
         "route_order": str(int(v.route_order)) if scheduled and v.route_order is not None else "",
         "lat": f"{v.lat:.6f}",
         "lon": f"{v.lon:.6f}",
@@ -185,7 +203,8 @@ def schedule_rows(design: Design) -> list[dict[str, str]]:
     """
     visits = ordered_visits(design)
     days = day_numbers(visits)
-    return [_row(v, days) for v in visits]
+    inclusion = {i: d.inclusion_p for i, d in enumerate(design.schedule.days)}
+    return [_row(v, days, inclusion) for v in visits]
 
 
 def write_schedule(design: Design, path: str | Path) -> Path:

@@ -10,9 +10,10 @@ The stages, each a pure function (``docs/methods.md``, "Field days and times"):
   timezone-aware datetimes and its temporal stratum (ISO week, month or the
   whole season). Sunrise and sunset come from ``astral`` (NOAA's solar
   equations), computed only when the window refers to them.
-- :func:`assign_days` spreads visits over the temporal strata in proportion to
-  their allowed days (largest remainder) and, inside each, over the days at
-  random with at most ``per_day`` a day.
+- :func:`plan_days` draws the field days, the primary units of time, each with a
+  known inclusion probability (stratified by temporal stratum, see
+  :mod:`geosample.randomizer.days`), and spreads the visits over them, at most
+  ``per_day`` a day; :func:`assign_days` gives the day of each visit.
 - :func:`draw_times` draws a uniform random whole minute inside each visit's window.
 - :func:`schedule_visits` puts it together for a :class:`~geosample.model.SiteDraw`
   with the stream ``geosample.rng.stream(seed, "time")``. Its job is *random
@@ -39,6 +40,7 @@ import numpy as np
 from ..errors import InfeasibleError, SettingError
 from ..model import FieldDay, Schedule, SiteDraw, Visit
 from ..rng import stream
+from .days import DayDraw, allocate_days, draw_days, spread_visits
 
 __all__ = [
     "WEEKDAYS",
@@ -47,8 +49,12 @@ __all__ = [
     "Window",
     "FieldCalendar",
     "parse_window",
-    "choose_field_days",
     "field_days",
+    "DayDraw",
+    "allocate_days",
+    "draw_days",
+    "spread_visits",
+    "plan_days",
     "assign_days",
     "draw_times",
     "schedule_visits",
@@ -458,79 +464,49 @@ def field_days(
     return FieldCalendar(tuple(days), tuple(warnings), tuple(dropped), win, tz_name, counts)
 
 
-# --------------------------------------------------------------------------- allocation over days
-def _temporal_groups(days: Sequence[FieldDay]) -> dict[str, list[int]]:
-    groups: dict[str, list[int]] = {}
-    for i, d in enumerate(days):
-        groups.setdefault(d.temporal_stratum, []).append(i)
-    return groups
+# --------------------------------------------------------------------------- days
+def plan_days(n_visits: int, days: Sequence[FieldDay], *, per_day: int, rng: np.random.Generator,
+              field_days: int | None = None) -> DayDraw:
+    """Draw the field days (primary units) and spread ``n_visits`` over them.
 
-
-def _largest_remainder(n: int, sizes: Sequence[int], rng: np.random.Generator) -> np.ndarray:
-    """Integers adding up to ``n``, each the floor or ceiling of ``n * size / sum(sizes)``.
-
-    The units left after the floors go to the largest remainders; equal remainders
-    are ordered at random (so the first week is not always favoured). Remainders
-    are compared exactly, as integers ``n * size mod total``.
-    """
-    sizes_a = np.asarray(sizes, dtype=np.int64)
-    total = int(sizes_a.sum())
-    prod = n * sizes_a
-    base, rem = prod // total, prod % total
-    left = n - int(base.sum())
-    tie = rng.permutation(len(sizes_a))
-    order = np.lexsort((tie, -rem))
-    base[order[:left]] += 1
-    return base
-
-
-def assign_days(n_visits: int, days: Sequence[FieldDay], *, per_day: int, rng: np.random.Generator) -> np.ndarray:
-    """Random field days for ``n_visits`` visits, spread over the temporal strata.
-
-    Each temporal stratum (``FieldDay.temporal_stratum``) gets a share of the
-    visits proportional to its number of allowed days, rounded by largest
-    remainder. Inside a stratum, the share is drawn without replacement from the
-    stratum's day slots (each day repeated ``per_day`` times), which is uniform
-    over the ways of placing the visits with at most ``per_day`` a day.
-
-    A stratum's share never exceeds its capacity: with ``D_h`` days out of ``D``
-    and ``n <= D * per_day``, the exact share ``n D_h / D`` is at most
-    ``D_h * per_day``, an integer, so its ceiling is too.
+    ``k`` days are drawn: ``field_days`` when given (a crew-day budget), else
+    ``len(days)``, but never more days than visits (one visit a day when the
+    season allows it; no drawn day without a visit). The days come from
+    :func:`~geosample.randomizer.days.draw_days` (stratified by temporal
+    stratum, each day with a known inclusion probability ``k_s / K_s``) and the
+    visits from :func:`~geosample.randomizer.days.spread_visits`
+    (``floor(n / k)`` or one more a day).
 
     Parameters
     ----------
     n_visits : int
     days : sequence of FieldDay
+        The allowed days, in date order.
     per_day : int
         Most visits a day.
     rng : numpy.random.Generator
-        Draws, in order: the tie order of equal remainders, then each temporal
-        stratum's slots (strata in order of first day).
+        Draws, in order: the days of each temporal stratum, then the days that get one more visit.
+    field_days : int, optional
+        The number of field days ``k`` (``time.field_days``).
 
     Returns
     -------
-    numpy.ndarray of int
-        Day indices into ``days``, length ``n_visits``, ascending.
+    DayDraw
 
     Raises
     ------
     SettingError
-        ``per_day`` not a whole number >= 1, or ``n_visits`` negative.
+        ``per_day`` not a whole number >= 1, ``n_visits`` negative, ``field_days``
+        out of range (see :func:`~geosample.randomizer.days.draw_days`).
     InfeasibleError
-        More visits than ``len(days) * per_day`` (message gives the figures and the fixes).
-
-    Examples
-    --------
-    >>> cal = field_days("2027-06-07", "2027-06-18", window=["07:00", "15:00"], timezone="UTC")
-    >>> idx = assign_days(4, cal.days, per_day=1, rng=np.random.default_rng(1))
-    >>> sorted(np.bincount([cal[i].temporal_stratum == "2027-W23" for i in idx]).tolist())
-    [2, 2]
+        More visits than ``k * per_day`` (message gives the figures and the fixes).
     """
     if isinstance(per_day, bool) or not isinstance(per_day, (int, np.integer)) or per_day < 1:
         raise SettingError("time.per_day", per_day, "a whole number >= 1", fix="write per_day = 8")
     if isinstance(n_visits, bool) or not isinstance(n_visits, (int, np.integer)) or n_visits < 0:
         raise SettingError("n_visits", n_visits, "a whole number >= 0")
     n = int(n_visits)
+    days = tuple(days)
     capacity = len(days) * int(per_day)
     if n > capacity:
         first = days[0].date.isoformat() if days else "-"
@@ -542,14 +518,30 @@ def assign_days(n_visits: int, days: Sequence[FieldDay], *, per_day: int, rng: n
             f"{math.ceil(n / max(len(days), 1))}, or take fewer samples."
         )
     if n == 0:
-        return np.zeros(0, dtype=int)
-    groups = _temporal_groups(days)
-    shares = _largest_remainder(n, [len(g) for g in groups.values()], rng)
-    out: list[np.ndarray] = []
-    for idx, share in zip(groups.values(), shares):
-        slots = np.repeat(np.asarray(idx, dtype=int), int(per_day))
-        out.append(slots[rng.choice(slots.size, size=int(share), replace=False)])
-    return np.sort(np.concatenate(out))
+        return DayDraw(tuple(dataclasses.replace(d, inclusion_p=0.0, drawn=False) for d in days), (), ())
+    k = min(int(field_days), n) if field_days is not None else min(n, len(days))
+    if field_days is not None and k * int(per_day) < n:
+        raise InfeasibleError(
+            f"{n} visits do not fit in time.field_days = {k} days of at most time.per_day = {per_day} "
+            f"visits ({k * per_day} visits). Raise field_days to at least {-(-n // per_day)}, "
+            "raise per_day, or plan fewer samples."
+        )
+    drawn = draw_days(days, k, rng=rng)
+    return spread_visits(drawn, n, per_day=int(per_day), rng=rng)
+
+
+def assign_days(n_visits: int, days: Sequence[FieldDay], *, per_day: int, rng: np.random.Generator,
+                field_days: int | None = None) -> np.ndarray:
+    """Field days for ``n_visits`` visits: one day index per visit, ascending (see :func:`plan_days`).
+
+    Examples
+    --------
+    >>> cal = field_days("2027-06-07", "2027-06-18", window=["07:00", "15:00"], timezone="UTC")
+    >>> idx = assign_days(4, cal.days, per_day=1, rng=np.random.default_rng(1))
+    >>> sorted(np.bincount([cal[i].temporal_stratum == "2027-W23" for i in idx]).tolist())
+    [2, 2]
+    """
+    return plan_days(n_visits, days, per_day=per_day, rng=rng, field_days=field_days).day_indices()
 
 
 # --------------------------------------------------------------------------- times
@@ -635,37 +627,6 @@ def _visit(site: Any, **kw: Any) -> Visit:
                  x=site.x, y=site.y, lat=site.lat, lon=site.lon, **kw)
 
 
-def choose_field_days(days: Sequence[FieldDay], count: int, *, rng: np.random.Generator,
-                      n_visits: int | None = None, per_day: int | None = None) -> tuple[FieldDay, ...]:
-    """A random subset of ``count`` crew days, spread over the temporal strata.
-
-    For a crew that can go out on only ``count`` days of the season
-    (``time.field_days``): each temporal stratum gets a share of the days in
-    proportion to its allowed days (largest remainder), and the days inside a
-    stratum are drawn at random without replacement. This is :func:`assign_days`
-    with one slot a day.
-
-    Raises
-    ------
-    SettingError
-        ``count`` is larger than the allowed days.
-    InfeasibleError
-        ``count * per_day`` is smaller than ``n_visits``.
-    """
-    days = tuple(days)
-    if count > len(days):
-        raise SettingError("time.field_days", count, f"at most the {len(days)} allowed days of the season",
-                           fix="lower time.field_days, or allow more weekdays or a longer season")
-    if n_visits is not None and per_day is not None and count * per_day < n_visits:
-        raise InfeasibleError(
-            f"{n_visits} visits do not fit in time.field_days = {count} days of at most time.per_day = {per_day} "
-            f"visits ({count * per_day} visits). Raise field_days to at least {-(-n_visits // per_day)}, "
-            "raise per_day, or plan fewer samples."
-        )
-    picked = assign_days(count, days, per_day=1, rng=rng)
-    return tuple(days[i] for i in sorted(set(int(i) for i in picked)))
-
-
 def schedule_visits(
     draw: SiteDraw,
     days: Sequence[FieldDay] | FieldCalendar,
@@ -673,29 +634,33 @@ def schedule_visits(
     per_day: int,
     seed: int | np.random.SeedSequence,
     minutes_on_site: float = 0,
+    field_days: int | None = None,
 ) -> Schedule:
-    """Random dates and times for the primary sites of a draw.
+    """Random field days, and random dates and times, for the primary sites of a draw.
 
-    This function's job is *random times*: :func:`assign_days` spreads the
-    primaries over the temporal strata and days, the primaries are shuffled
-    over the chosen day slots (which site goes on which day is random too), and
-    :func:`draw_times` gives each a uniform random time in its window.
-    ``itinerary.build_itinerary`` later replaces times and ``route_order``
-    with a routed order.
+    :func:`plan_days` draws the field days (each allowed day with a known
+    inclusion probability, stored on the day) and the number of visits on
+    each; the primaries are shuffled over those visits (which site goes on which
+    day is random too), and :func:`draw_times` gives each a uniform random time
+    in its window. ``itinerary.build_itinerary`` later replaces times and
+    ``route_order`` with a routed order whose times are uniform over the window too.
 
     Parameters
     ----------
     draw : SiteDraw
     days : sequence of FieldDay or FieldCalendar
-        All allowed days; they are all stored in ``Schedule.days`` (so the
-        report can show the calendar) and ``Visit.day_index`` refers to them.
+        All allowed days; they are all stored in ``Schedule.days`` with their
+        ``inclusion_p`` and ``drawn`` set, and ``Visit.day_index`` refers to them.
     per_day : int
         Most visits a day.
     seed : int or SeedSequence
         The design's root seed; the stream ``stream(seed, "time")`` draws, in
-        order: the day slots (:func:`assign_days`), the shuffle of the primaries
-        over them, then the times.
+        order: the field days and their numbers of visits (:func:`plan_days`),
+        the shuffle of the primaries over them, then the times.
     minutes_on_site : float
+    field_days : int, optional
+        The number of field days (``time.field_days``); by default as many as
+        there are primaries, at most every allowed day.
 
     Returns
     -------
@@ -703,18 +668,21 @@ def schedule_visits(
         Primaries sorted by (date, planned time, site id) with ``route_order`` the
         order of planned time within the day (1-based); then reserves, with no
         date, by stratum (in draw order) and ``reserve_rank``. ``time_of_day``
-        from :func:`time_of_day_summary`; ``warnings`` those of a FieldCalendar.
+        from :func:`time_of_day_summary`; ``warnings`` those of a FieldCalendar;
+        ``day_draw`` the day draw's record (:meth:`DayDraw.record`).
 
     Raises
     ------
     SettingError, InfeasibleError
-        As :func:`assign_days` and :func:`draw_times`.
+        As :func:`plan_days` and :func:`draw_times`.
     """
     warnings = tuple(getattr(days, "warnings", ()))
-    day_tuple = tuple(getattr(days, "days", days))
     rng = stream(seed, "time")
     primaries = draw.primaries()
-    slots = assign_days(len(primaries), day_tuple, per_day=per_day, rng=rng)
+    plan = plan_days(len(primaries), tuple(getattr(days, "days", days)), per_day=per_day, rng=rng,
+                     field_days=field_days)
+    day_tuple = plan.days
+    slots = plan.day_indices()
     who = rng.permutation(len(primaries))
     times = draw_times(slots, day_tuple, rng=rng, minutes_on_site=minutes_on_site)
 
@@ -732,7 +700,7 @@ def schedule_visits(
     reserves = sorted(draw.reserves(), key=lambda s: (strata_order[s.stratum], s.reserve_rank, s.site_id))
     visits.extend(_visit(s) for s in reserves)
     return Schedule(visits=tuple(visits), days=day_tuple, time_of_day=time_of_day_summary(visits),
-                    warnings=warnings)
+                    warnings=warnings, calendar_days=len(day_tuple), day_draw=plan.record())
 
 
 def time_of_day_summary(visits: Iterable[Visit]) -> dict[str, dict[str, float]]:
