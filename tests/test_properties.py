@@ -165,7 +165,7 @@ anything = st.one_of(
 def test_a_value_the_schema_refuses_raises_a_geosample_error(raw, where, value):
     section, key = where
     assume(value is not None and not SCHEMA[section][key].check(value))
-    raw[section][key] = value
+    raw.setdefault(section, {})[key] = value
     with pytest.raises(GeosampleError):
         _load(raw)
 
@@ -187,7 +187,7 @@ def test_an_unknown_key_raises_a_geosample_error(raw, section, key, value):
 def test_out_of_range_numbers_raise_a_geosample_error(raw, where, value):
     section, key = where
     assume(not SCHEMA[section][key].check(value))
-    raw[section][key] = value
+    raw.setdefault(section, {})[key] = value
     with pytest.raises(GeosampleError):
         _load(raw)
 
