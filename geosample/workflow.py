@@ -122,13 +122,18 @@ def run_plan(plan_path: str | Path, out: str | Path, *, overwrite: bool = False,
     else:
         seed, seed_source = resolve_seed(plan.settings)
         reg_entry = None
-    key = history.content_key(plan.settings, input_sha)
+    key, layers_key = history.content_key(plan.settings, input_sha), history.inputs_key(input_sha)
     rec = draw_record_path(plan.path) if plan.path else None
-    earlier = history.gather(key, plan.sha256, _history_sources(key, rec, plan.path, out)) if record else []
-    row = history.new_row(key=key, plan_sha256=plan.sha256, seed=seed, seed_source=seed_source,
+    earlier = (history.gather(key, plan.sha256, _history_sources(layers_key, rec, plan.path, out), layers_key)
+               if record else [])
+    row = history.new_row(key=key, inputs=layers_key, plan_sha256=plan.sha256, seed=seed, seed_source=seed_source,
                           registration_sha256=reg.sha256 if reg else "", n_primary=0, n_sites=0, output=out.name)
+    # rows written before content keys existed were matched by the plan file's bytes: label them with its keys
+    earlier = [r if r.get("content_sha256") else {**r, "content_sha256": key, "inputs_sha256": layers_key}
+               for r in earlier]
     rows = earlier + [row]
-    design = make_design(plan, layers=layers, seed=seed, seed_source=seed_source, draw_count=len(rows),
+    draws = sum(1 for r in rows if history.same_plan(r, key))
+    design = make_design(plan, layers=layers, seed=seed, seed_source=seed_source, draw_count=draws,
                          inputs=inputs, progress=progress, registration=reg_entry,
                          history=history.manifest_entry(key, rows))
     row.update(n_primary=str(design.allocation.total), n_sites=str(len(design.draw.sites)))
@@ -146,7 +151,7 @@ def run_plan(plan_path: str | Path, out: str | Path, *, overwrite: bool = False,
         write_manifest(design, tmp, final_folder=out, plan_path=plan.path, plan_sha256=plan.sha256,
                        outputs={name: p for name, p in files.items()}, input_locations=locations)
         if record:  # the history is written before the new folder is swapped in
-            _record_draw(row, [history.store_path(key)] + ([rec] if rec else []))
+            _record_draw(row, [history.store_path(layers_key)] + ([rec] if rec else []))
         _swap_in(tmp, out)
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)

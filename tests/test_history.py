@@ -46,6 +46,7 @@ def test_content_key_ignores_what_does_not_change_the_draw(tmp_path):
     base = _key(tmp_path)
     assert _key(tmp_path, comment="# a comment\n") == base
     assert _key(tmp_path, title="Another title") == base
+    assert _key(tmp_path, comment='[export]\ngpx_symbols = "none"\n') == base
     assert _key(tmp_path, seed="seed = 8") == base  # a re-draw with another seed is what is counted
     assert _key(tmp_path, seed='seed_text = "x"') == base
     assert _key(tmp_path, water="renamed/lake.geojson") == base  # the layer counts by its bytes
@@ -156,3 +157,22 @@ def test_an_old_draw_record_without_content_keys_still_counts(tmp_path, store):
     assert _count(tmp_path / "d") == 2
     lines = record.read_text(encoding="utf-8").splitlines()
     assert lines[0] == "time_utc,plan_sha256,seed,seed_source,n_primary,n_sites,output" and len(lines) == 4
+    rows = history.read_rows(tmp_path / "d" / "draws.csv")
+    assert [r["output"] for r in rows] == ["old", "d"]  # no absolute path in the package
+    assert main(["verify", str(tmp_path / "d")]) == 0
+
+
+def test_draws_over_the_same_layers_with_other_settings_are_counted_apart(tmp_path, store, capsys):
+    plan = copy_demo(tmp_path / "in")
+    assert main(["plan", str(plan), "-o", str(tmp_path / "d1"), "-q"]) == 0
+    text = plan.read_text(encoding="utf-8")
+    assert "reserve = 0.5" in text
+    changed = tmp_path / "in" / "plan-b.toml"
+    changed.write_text(text.replace("reserve = 0.5", "reserve = 1", 1), encoding="utf-8")
+    assert main(["plan", str(changed), "-o", str(tmp_path / "d2"), "-q"]) == 0
+    manifest = json.loads((tmp_path / "d2" / "manifest.json").read_text(encoding="utf-8"))
+    assert manifest["draw_count"] == 1 and manifest["history"]["other_settings_draws"] == 1
+    report = (tmp_path / "d2" / "report.html").read_text(encoding="utf-8")
+    assert "Draws with other settings exist" in report and "Earlier draws exist" not in report
+    capsys.readouterr()
+    assert main(["verify", str(tmp_path / "d2")]) == 0

@@ -291,6 +291,7 @@ def _seed_choice(design: Design) -> dict:
         "seed_text": None if seed_text is None else printable(seed_text),
         "draw_count": design.draw_count,
         "earlier_draws": design.draw_count > 1,
+        "other_settings_draws": int(history.get("other_settings_draws") or 0),
         "history_file": history.get("file", ""),
     }
 
