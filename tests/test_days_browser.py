@@ -3,8 +3,8 @@
 The pages of the PDF are counted with pypdf when it is installed, otherwise by
 counting the ``/Type /Page`` objects of the file (PDF 32000-1:2008, 7.7.3.3: one
 page object per page). The three fullest sheets (most stops and reserves) of two designs from the demo plan: as shipped (16 field days,
-about 4 stops a day) and with ``field_days = 8`` (8 stops a day, the plan's
-``per_day``: the fullest sheet the plan allows).
+about 4 stops a day) and with ``field_days = 8`` and monthly temporal strata (8 stops a day, the
+plan's ``per_day``: the fullest sheet the plan allows).
 """
 from __future__ import annotations
 
@@ -42,7 +42,10 @@ def designs(tmp_path_factory):
     for days in (16, 8):
         src = copy_demo(tmp_path_factory.mktemp(f"inputs{days}"))
         text = src.read_text(encoding="utf-8")
-        src.write_text(re.sub(r"(?m)^field_days = \d+", f"field_days = {days}", text), encoding="utf-8")
+        text = re.sub(r"(?m)^field_days = \d+", f"field_days = {days}", text)
+        if days < 14:  # fewer days than the season's 14 ISO weeks: one field day per month stratum at least
+            text = text.replace("[time]", '[time]\ntemporal = "month"', 1)
+        src.write_text(text, encoding="utf-8")
         folder = tmp_path_factory.mktemp(f"d{days}") / "design"
         run_plan(src, folder, record=False)
         out.append(folder)
