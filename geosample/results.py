@@ -800,7 +800,7 @@ def _per_stratum(manifest: dict, names: list[str], usable: list[Record], statist
                     "outside_range",
                     f"{st}: results differ by {y.max() - y.min():.4g}{unit}, more than the declared range "
                     f"{L:g}: the range-based bounds (chebyshev, cantelli, hoeffding, bernstein, betting) do not hold; "
-                    "the assessment falls back to a Student t interval, whose confidence is approximate",
+                    "the assessment makes no decision and shows an approximate interval only",
                     rows, st, "voids"))
             bad = [r.row for r, v in zip(recs, y) if v < lower or v > lower + L]
             if bad and st not in exceeded:

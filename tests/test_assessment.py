@@ -9,6 +9,7 @@ from __future__ import annotations
 import math
 import sys
 from pathlib import Path
+from types import SimpleNamespace
 
 import numpy as np
 import pytest
@@ -47,12 +48,87 @@ def test_assess_geomean_reports_back_on_the_original_scale():
     assert "geometric mean" in a.statement and "factor" in a.statement
 
 
-def test_results_outside_the_range_fall_back_to_t_and_say_so():
-    vals = {"North basin": [40, 55, 620, 38], "South basin": [88, 95, 102, 79], "Reed bay": [120, 131, 115]}
-    a = assess(fake_results(vals, range_exceeded=("North basin",)), fake_manifest(range=400, bound="hoeffding"))
-    assert a.bound == "t" and a.planned_bound == "hoeffding" and a.range_void
-    assert any("does not hold" in n for n in a.notes)
-    assert "approximate" in a.statement
+# --------------------------------------------------------------------------- no switching after the data
+# Issue 10: "One result outside the declared range makes assess drop the planned bound for a Student t
+# interval: 17.1 ± 3.4 ... below the criterion where the same data without it gave not established."
+IN_RANGE = {"North basin": [40, 55, 62, 38, 71, 49], "South basin": [88, 95, 102, 79], "Reed bay": [120, 131, 115]}
+PLANS = {  # bound -> extra plan settings
+    "chebyshev": dict(), "cantelli": dict(sides="one"), "hoeffding": dict(), "bernstein": dict(extra_size="sd = 30"),
+    "betting": dict(),
+}
+
+
+def _void(vals: dict, stratum: str = "North basin") -> SimpleNamespace:
+    return fake_results(vals, range_exceeded=(stratum,), outside_support=(stratum,))
+
+
+@pytest.mark.parametrize("bound", list(PLANS))
+@pytest.mark.parametrize("outlier", [260.0, 900.0, 17.1e3])
+def test_one_result_outside_the_range_never_gives_a_decision(bound, outlier):
+    m = fake_manifest(range=200, bound=bound, criterion=126, **PLANS[bound])
+    vals = {k: list(v) for k, v in IN_RANGE.items()}
+    vals["North basin"][-1] = outlier
+    a = assess(_void(vals), m)
+    assert a.range_void and a.bound == bound and a.planned_bound == bound  # the bound named in the plan
+    assert a.decision == "no decision"
+    assert "no basis for a decision" in a.statement and "approximate" in a.statement
+    assert "no decision" in a.decision_text.lower() and "below the criterion at" not in a.decision_text
+    assert a.strata[0].decision == "no decision" and a.strata[0].p_value is None
+    assert a.sequential.established_after is None
+
+
+@pytest.mark.parametrize("bound", list(PLANS))
+def test_the_interval_shown_for_out_of_range_data_is_never_narrower_than_the_planned_one(bound):
+    # the planned bound on the same data brought into the declared range (what the plan would have given)
+    m = fake_manifest(range=200, bound=bound, criterion=126, **PLANS[bound])
+    vals = {k: list(v) for k, v in IN_RANGE.items()}
+    vals["North basin"][-1] = 260.0
+    clipped = {k: list(np.clip(v, 0, 200)) for k, v in vals.items()}
+    a, planned = assess(_void(vals), m), assess(fake_results(clipped), m)
+    assert a.interval.low <= planned.interval.low and a.interval.high >= planned.interval.high
+
+
+def test_no_range_for_a_range_bound_gives_no_decision():
+    m = fake_manifest(range=200, bound="hoeffding")
+    m["settings"]["size"]["range"] = None
+    a = assess(fake_results(IN_RANGE), m)
+    assert a.range_void and a.decision == "no decision" and "no basis for a decision" in a.statement
+
+
+def test_in_range_data_still_decides():
+    vals = {"North basin": [20, 25, 22, 24] * 9, "South basin": [30, 35, 32] * 10, "Reed bay": [28, 26] * 10}
+    a = assess(fake_results(vals), fake_manifest(range=100, bound="hoeffding", criterion=126))
+    assert a.decision == "below" and not a.range_void
+
+
+# --------------------------------------------------------------------------- all-equal strata, size.lower
+@pytest.mark.parametrize("bound", ["chebyshev", "cantelli", "hoeffding", "bernstein", "betting", "t"])
+def test_a_stratum_whose_results_are_all_equal_is_assessed(bound):
+    # a clean bay where every sample reads the same value (issue 10: exit 2 "size.sd = 0.0 is not accepted")
+    vals = {"North basin": [10.0] * 6, "South basin": [88, 95, 102, 79], "Reed bay": [120, 131, 115]}
+    kw = dict(PLANS.get(bound, {}))
+    if bound == "t":
+        kw["extra_size"] = "sd = 30"
+    a = assess(fake_results(vals), fake_manifest(range=200, bound=bound, **kw))
+    assert a.strata[0].sd == 0.0 and a.strata[0].mean == 10.0
+    assert a.next_allocation is not None and all(n >= 2 for n in a.next_allocation.n)
+    every = assess(fake_results({k: [10.0] * 4 for k in vals}), fake_manifest(range=200, bound=bound, **kw))
+    assert every.estimate == pytest.approx(10.0)
+
+
+def test_size_lower_moves_the_floor_and_the_betting_support():
+    # size.lower = 50: results run from 50 to 250; the interval's lower end is cut at 50, not 0
+    vals = {"North basin": [52, 55, 51, 53], "South basin": [60, 58, 57], "Reed bay": [70, 66, 64]}
+    a0 = assess(fake_results(vals), fake_manifest(range=200, bound="chebyshev"))
+    m50 = fake_manifest(range=200, bound="chebyshev")
+    m50["settings"]["size"]["lower"] = 50.0  # the plan key size.lower (its loader check is stats-size's)
+    a50 = assess(fake_results(vals), m50)
+    assert a0.low == pytest.approx(0.0) and a50.low == pytest.approx(50.0)
+    b0 = assess(fake_results(vals), fake_manifest(range=200, bound="betting"))
+    mb = fake_manifest(range=200, bound="betting")
+    mb["settings"]["size"]["lower"] = 50.0
+    b50 = assess(fake_results(vals), mb)
+    assert b50.low >= 50 and b50.low > b0.low
 
 
 def test_stratum_without_results_is_an_error():
@@ -117,7 +193,9 @@ def test_per_stratum_pvalues_are_adjusted_and_all_listed():
     assert [s.p_adjusted for s in bh.strata] == pytest.approx(list(adjust_pvalues(raw, "bh")))
 
 
-def test_bernstein_with_a_single_result_falls_back_to_chebyshev_and_says_so():
+def test_bernstein_with_a_single_result_is_never_narrower_than_the_declared_range():
+    # no switch to another bound: a stratum with one result contributes its whole declared range
     vals = {"North basin": [40, 55, 62], "South basin": [88, 95], "Reed bay": [120]}
     a = assess(fake_results(vals), fake_manifest(range=200, bound="bernstein", extra_size="sd = 30"))
-    assert a.bound == "chebyshev" and any("Bernstein" in n for n in a.notes)
+    assert a.bound == "bernstein" and any("Bernstein" in n and "Reed bay" in n for n in a.notes)
+    assert a.interval.high - a.interval.low >= 0.2 * 200  # Reed bay (weight 0.2) spans its range

@@ -97,8 +97,8 @@ def summary_text(a) -> str:
     geo = a.statistic == "geomean"
     lines = [a.statement, "", a.decision_text]
     if a.range_void:
-        lines.append(f"NOTE: the planned {a.planned_bound} bound does not hold (results outside the declared range); "
-                     f"the interval is from the {a.bound} bound.")
+        lines.append(f"NOTE: the guarantee of the planned {a.planned_bound} bound does not hold (results outside the "
+                     "declared range): no decision; the interval shown is approximate and no basis for a decision.")
     lines.append(f"Sequence: {a.sequential.note}.")
     lines += ["", f"Strata (all {len(a.strata)} compared with the criterion; p adjusted by {a.adjust}):"]
     head = ("stratum", "n", "planned", "mean", "sd (log10)" if geo else "sd", "interval", "p", "p adj", "comparison")

@@ -239,7 +239,8 @@ def _next_plan_header(assessment: Any, results_name: str) -> str:
             lines += [f"- n = {r.total}: the total that meets the tolerance with the declared range alone; the sds",
                       "  only split it (the report's guarantee for this n takes them as known, capped at range/2)."]
     if assessment.range_void:
-        lines.append("WARNING: results fell outside the declared range; raise size.range before the next draw.")
+        lines.append("WARNING: results fell outside the declared range, so this season gave no decision; raise "
+                     "size.range (or set size.lower) before the next draw.")
     return "\n".join(lines)
 
 

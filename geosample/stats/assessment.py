@@ -21,6 +21,7 @@ from .betting import BettingSequence, _log_k, _theta, betting_bounds, betting_se
 from .decisions import (
     ADJUST_METHODS,
     BOUND_ASSUMPTIONS,
+    NO_DECISION,
     adjust_pvalues,
     decide,
     decision_statement,
@@ -81,7 +82,9 @@ class Assessment:
     Figures named ``estimate, low, high`` are on the original scale (for a
     geometric mean: back-transformed); ``interval`` holds the analysis scale
     (log10 for ``geomean``). ``decision`` is ``"below"``, ``"above"``,
-    ``"not established"`` or None (no criterion).
+    ``"not established"``, ``"no decision"`` (results outside the declared range void the
+    bound's guarantee) or None (no criterion). ``approximate`` is True when no theorem
+    backs the stated confidence (the t bound, or a void range).
     """
 
     statistic: str
@@ -113,6 +116,10 @@ class Assessment:
     notes: tuple[str, ...] = ()
     range_void: bool = False
 
+    @property
+    def approximate(self) -> bool:
+        return self.range_void or self.bound == "t"
+
     def as_dict(self) -> dict[str, Any]:
         """Plain data for ``--json`` and the HTML report."""
         back = self.statistic == "geomean"
@@ -142,7 +149,7 @@ class Assessment:
                            "more_needed": self.sequential.more_needed, "note": self.sequential.note},
             "next_allocation": None if self.next_allocation is None else self.next_allocation.as_dict(),
             "flags": [_flag_dict(f) for f in self.flags],
-            "notes": list(self.notes), "range_void": self.range_void,
+            "notes": list(self.notes), "range_void": self.range_void, "approximate": self.approximate,
         }
 
 
@@ -229,6 +236,19 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
         if H > 1:
             notes.append(f"empirical Bernstein bound in each of the {H} strata at error {a / H:.4g} "
                          "(union bound), combined with the area weights")
+        short = [s for s in strata if s.y.size < 2]
+        if short:
+            # no switch to another bound: a stratum whose spread cannot be estimated contributes its whole
+            # declared range (the mean lies there with certainty when the results respect the range)
+            lo = sum(s.weight * ((s.lower if s.y.size < 2 else float(s.y.mean()) - p)) for s, p in zip(strata, parts))
+            hi = sum(s.weight * ((s.lower + s.L if s.y.size < 2 else float(s.y.mean()) + p))
+                     for s, p in zip(strata, parts))
+            notes.append("the empirical Bernstein bound needs at least 2 results in a stratum to estimate its spread: "
+                         f"{', '.join(s.name for s in short)} contribute{'s' if len(short) == 1 else ''} "
+                         "the whole declared range")
+            if sides == "one":
+                lo, hi = (-math.inf, hi) if direction == "below" else (lo, math.inf)
+            return Interval(est, lo, hi, confidence, bound, sides, None, None, tuple(notes)), None, seqs
     elif bound == "betting":
         lo = hi = 0.0
         for s in strata:
@@ -254,6 +274,29 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
     if sides == "one":
         lo, hi = (-math.inf, hi) if direction == "below" else (lo, math.inf)
     return Interval(est, lo, hi, confidence, bound, sides, float(d), df, tuple(notes)), None, seqs
+
+
+def _void_interval(bound: str, strata: list[_Stratum], confidence: float, sides: str, direction: str
+                   ) -> tuple[Interval, None, list]:
+    """The interval shown when results lie outside the declared range: approximate, no basis for a decision.
+
+    The hull of the plan's bound on the results brought into the declared range
+    (what the plan would have given) and the plan's bound with the range stretched
+    to cover the results, so it is never narrower than the planned interval.
+    """
+    inside = [replace(s, y=np.clip(s.y, s.lower, s.lower + s.L)) for s in strata]
+    stretched = []
+    for s in strata:
+        lo = min(s.lower, float(s.y.min()))
+        hi = max(s.lower + s.L, float(s.y.max()))
+        stretched.append(replace(s, lower=lo, L=hi - lo))
+    a = _interval(bound, inside, confidence, sides, direction)[0]
+    b = _interval(bound, stretched, confidence, sides, direction)[0]
+    est = float(stratified_mean([s.weight for s in strata], [float(s.y.mean()) for s in strata]))
+    low, high = min(a.low, b.low, est), max(a.high, b.high, est)
+    if sides == "one":
+        low, high = (-math.inf, high) if direction == "below" else (low, math.inf)
+    return Interval(est, low, high, confidence, bound, sides, None, None, ()), None, []
 
 
 def _established_after(strata: list[_Stratum], seqs: list[BettingSequence], order: list[tuple[int, int]],
@@ -384,37 +427,43 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
     if criterion is not None and statistic == "geomean" and criterion <= 0:
         raise SettingError("survey.criterion", criterion, "a number above 0 for a geometric mean (its log10 is taken)")
     a_crit = None if criterion is None else (math.log10(criterion) if statistic == "geomean" else float(criterion))
-    # which bound can be used
+    # the bound named in the plan is the bound used; results outside the declared range void its guarantee
     bound = planned
-    range_void = False
     void_strata = set(getattr(results, "range_exceeded", ()))
     if planned in SUPPORT_BOUNDS:
         void_strata |= set(getattr(results, "outside_support", ()))
-    if planned in RANGE_BOUNDS and (void_strata or any(s.L is None for s in strata)):
-        range_void = True
-        bound = "t"
-        why = (f"results in {', '.join(sorted(void_strata))} lie outside the plan's declared range"
-               if void_strata else "the plan declares no range for some strata")
-        notes.append(f"The {planned} bound does not hold: {why}, and its guarantee rests on that range. "
-                     "The interval is a Student t interval instead, whose confidence is approximate (see its "
-                     "assumption). Fix the range in the plan for the next season.")
-    if bound == "bernstein" and any(s.y.size < 2 for s in strata):
-        bound = "chebyshev"
-        notes.append("The empirical Bernstein bound needs at least 2 results per stratum to estimate the spread; "
-                     "the Chebyshev bound (which needs only the declared range) is used instead.")
+    no_range = [s.name for s in strata if s.L is None]
+    range_void = planned in RANGE_BOUNDS and bool(void_strata or no_range)
+    void_reason = ""
+    if range_void:
+        void_reason = (f"results in {', '.join(sorted(void_strata))} lie outside the plan's declared range"
+                       if void_strata else f"the plan declares no range for {', '.join(no_range)}")
+        notes.append(f"The {planned} bound's guarantee does not hold: {void_reason}, and its guarantee rests on that "
+                     "range. No decision is made. The interval shown is approximate and no basis for a decision"
+                     + ("" if no_range else ": it is the wider of the bound with the range stretched to the observed "
+                        "results and the bound on the results brought into the declared range")
+                     + ". Fix the range in the plan (from the method's reporting limits) for the next season.")
+    if no_range and planned in RANGE_BOUNDS:
+        bound = "t"  # the plan's bound cannot be computed at all without a range: an approximate figure only
     if bound == "t":
         short = [s.name for s in strata if s.y.size < 2]
         if short:
             raise ResultsError(
                 f"stratum {', '.join(repr(x) for x in short)} has only 1 usable result; the t interval"
-                + (f" (used because the {planned} bound is void)" if range_void else "")
+                + (" (shown because the plan declares no range)" if range_void else "")
                 + " needs at least 2 per stratum to estimate the spread. Sample a reserve there (in reserve_rank "
                 "order), or declare a range that the results respect.")
-    iv, _, seqs = _interval(bound, strata, confidence, sides, direction, path=a_crit is not None)
+
+    def shown(group: list[_Stratum], path: bool = False):
+        if range_void and bound != "t":
+            return _void_interval(bound, group, confidence, sides, direction)
+        return _interval(bound, group, confidence, sides, direction, path=path)
+
+    iv, _, seqs = shown(strata, path=a_crit is not None)
     # a mean of concentrations or counts is not negative: the interval's lower end is cut at the weighted lower
     # end of the range (0 unless size.lower says otherwise); the upper end is left alone, since the plan
     # declares the range's length, not where it ends (betting works inside the range by construction)
-    clip = (bound in RANGE_BOUNDS and bound != "betting" and statistic == "mean"
+    clip = (bound in RANGE_BOUNDS and bound != "betting" and statistic == "mean" and not range_void
             and not set(getattr(results, "outside_support", ())))
     if clip:
         floor = float(np.dot([s.weight for s in strata], [s.lower for s in strata]))
@@ -425,27 +474,32 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
         iv = clipped
     notes += list(iv.notes)
     decision = decide(iv.low, iv.high, a_crit, sides, direction)
+    if range_void and decision is not None:
+        decision = NO_DECISION
     # per-stratum figures and comparisons
     per: list[StratumEstimate] = []
     pvals: list[float] = []
     for s in strata:
         sd = float(s.y.std(ddof=1)) if s.y.size > 1 else None
-        one = _interval(bound if not (bound == "t" and s.y.size < 2) else "chebyshev", [
-            _Stratum(s.name, 1.0, s.y, s.lower, s.L, s.n_planned, 0, 0)], confidence, sides, direction)[0]
+        one = shown([_Stratum(s.name, 1.0, s.y, s.lower, s.L, s.n_planned, 0, 0)])[0]
         if clip:
             one = _clip(one, s.lower, math.inf)
         p = None
-        if a_crit is not None:
+        if a_crit is not None and not (range_void and (s.name in void_strata or no_range)):
             p = stratum_pvalue(bound, s.y, a_crit, L=s.L, lower=s.lower, confidence=confidence, sides=sides,
                                direction=direction)
             pvals.append(p)
         per.append(StratumEstimate(s.name, s.weight, int(s.y.size), s.n_planned, float(s.y.mean()), sd, one.low,
                                    one.high, s.censored_left, s.censored_right, p))
     if a_crit is not None:
-        adj = adjust_pvalues(pvals, adjust)
+        adj = iter(adjust_pvalues(pvals, adjust))
         alpha = 1 - confidence
         new = []
-        for s, pa in zip(per, adj):
+        for s in per:
+            if s.p_value is None:
+                new.append(replace(s, decision=NO_DECISION))
+                continue
+            pa = next(adj)
             if pa <= alpha:
                 d = direction if sides == "one" else ("below" if s.mean < a_crit else "above")
             else:
@@ -457,7 +511,10 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
     name_index = {s.name: i for i, s in enumerate(strata)}
     order_idx = [(name_index[nm], k) for nm, k in order if nm in name_index] if order else [
         (h, k) for h, s in enumerate(strata) for k in range(s.y.size)]
-    seq = _sequential(bound, iv, strata, seqs, order_idx, a_crit, decision, direction, sides)
+    if range_void and a_crit is not None:
+        seq = Sequential(None, None, f"no decision: {void_reason}, which voids the {planned} bound's guarantee")
+    else:
+        seq = _sequential(bound, iv, strata, seqs, order_idx, a_crit, decision, direction, sides)
     # back to the original scale and wording
     geo = statistic == "geomean"
     est = 10 ** iv.estimate if geo else iv.estimate
@@ -470,9 +527,10 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
     season = (str(time.get("start", "")), str(time.get("end", "")))
     label = _frame_label(manifest)
     text = statement(statistic=statistic, parameter=survey.get("parameter", ""), frame_label=label, season=season,
-                     figure=figure, confidence=confidence, bound=bound, sides=sides, direction=direction)
+                     figure=figure, confidence=confidence, bound=bound, sides=sides, direction=direction,
+                     void=void_reason)
     dtext = decision_statement(decision, criterion=criterion, confidence=confidence, statistic=statistic,
-                               sides=sides, units=units, direction=direction)
+                               sides=sides, units=units, direction=direction, void=void_reason)
     cens = sum(s.censored_left for s in strata), sum(s.censored_right for s in strata)
     if cens[0]:
         notes.append(f"{cens[0]} result(s) below a detection limit enter at the limit, which can only raise the "

@@ -14,6 +14,7 @@ from .betting import betting_pvalue
 
 __all__ = [
     "ADJUST_METHODS",
+    "NO_DECISION",
     "BOUND_ASSUMPTIONS",
     "adjust_pvalues",
     "stratum_pvalue",
@@ -23,6 +24,8 @@ __all__ = [
     "decision_statement",
 ]
 
+#: The decision when results outside the declared range void the bound's guarantee.
+NO_DECISION = "no decision"
 #: p-value adjustments for the per-stratum comparisons (``--adjust``).
 ADJUST_METHODS = ("holm", "bh", "bonferroni", "none")
 
@@ -191,11 +194,20 @@ def format_estimate(estimate: float, low: float | None, high: float | None, *, h
 
 
 def statement(*, statistic: str, parameter: str, frame_label: str, season: tuple[str, str], figure: str,
-              confidence: float, bound: str, sides: str, direction: str) -> str:
-    """The confidence statement: a claim about the procedure, never a probability about the mean."""
+              confidence: float, bound: str, sides: str, direction: str, void: str = "") -> str:
+    """The confidence statement: a claim about the procedure, never a probability about the mean.
+
+    With ``void`` (why the bound's guarantee does not hold, e.g. results outside the
+    declared range) no confidence is claimed: the figure is labelled approximate and
+    no basis for a decision.
+    """
     what = "geometric mean" if statistic == "geomean" else "mean"
     param = f" {parameter}" if parameter else ""
     pct = _pct(confidence)
+    if void:
+        return (f"The {what}{param} over {frame_label} from {season[0]} to {season[1]} is approximately {figure} "
+                f"(approximate: {void}, so the guarantee of the {bound} bound named in the plan does not hold; this "
+                f"interval is no basis for a decision and no confidence level is claimed for it).")
     if sides == "one":
         kind = "an upper bound that lies above" if direction == "below" else "a lower bound that lies below"
     else:
@@ -212,13 +224,18 @@ def statement(*, statistic: str, parameter: str, frame_label: str, season: tuple
 
 
 def decision_statement(decision: str | None, *, criterion: float | None, confidence: float, statistic: str,
-                       sides: str, units: str = "", direction: str = "below") -> str:
+                       sides: str, units: str = "", direction: str = "below", void: str = "") -> str:
     """The decision in words, e.g. "the whole interval lies below the criterion 126, so ..."."""
     what = "geometric mean" if statistic == "geomean" else "mean"
     pct = _pct(confidence)
     if criterion is None or decision is None:
         return "No criterion is given in the plan (survey.criterion), so no comparison is made."
     c = f"{criterion:g}"
+    if decision == NO_DECISION:
+        return (f"No decision: {void or 'the bound named in the plan does not hold'}, which voids the guarantee the "
+                f"comparison rests on, so it is claimed neither that the {what} is below nor that it is above the "
+                f"criterion {c}. Declare a range the results respect (for example from the method's reporting "
+                "limits) and assess a new season's samples.")
     thing = "interval" if sides == "two" else "bound"
     if decision == "below":
         return (f"The whole {thing} lies below the criterion {c}, so the {what} is below the criterion at the "

@@ -26,6 +26,7 @@ from .betting import (
 from .decisions import (
     ADJUST_METHODS,
     BOUND_ASSUMPTIONS,
+    NO_DECISION,
     adjust_pvalues,
     decide,
     decision_statement,
@@ -50,7 +51,7 @@ from .intervals import (
 from .reallocation import Reallocation, reallocate
 
 __all__ = [
-    "ADJUST_METHODS", "RANGE_BOUNDS", "SUPPORT_BOUNDS", "BOUND_ASSUMPTIONS", "Interval", "CapitalPath",
+    "ADJUST_METHODS", "NO_DECISION", "RANGE_BOUNDS", "SUPPORT_BOUNDS", "BOUND_ASSUMPTIONS", "Interval", "CapitalPath",
     "BettingSequence", "StratumEstimate", "Reallocation", "Sequential", "Assessment", "declared_support",
     "to_analysis_scale", "stratified_mean", "chebyshev_half_width", "cantelli_half_width",
     "hoeffding_half_width", "welch_df", "t_half_width", "bernstein_half_width", "capital_process", "prpl_bets",

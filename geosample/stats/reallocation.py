@@ -97,6 +97,16 @@ def reallocate(names: Sequence[str], weights: Sequence[float], sds: Sequence[flo
     if all(s == 0 for s in sd_list):
         sd_list = [1.0] * len(sd_list)
         notes.append("every stratum's results were identical (sd 0): effort is split as if the sds were equal")
+    elif any(s == 0 for s in sd_list):
+        # an sd of 0 from a few equal results (a clean bay where every sample reads "<10") is no reason to stop
+        # sampling there: the stratum keeps the plan's sd, else the smallest sd observed elsewhere
+        smallest = min(s for s in sd_list if s > 0)
+        for i, (name, s) in enumerate(zip(names, sd_list)):
+            if s == 0:
+                plan_sd = (per.get(name) or {}).get("sd") or size.get("sd")
+                sd_list[i] = float(plan_sd or smallest)
+                notes.append(f"{name}: every result was the same (sd 0); its sd is taken from "
+                             + ("the plan" if plan_sd else "the smallest sd observed in another stratum"))
     costs, cost_src = _costs(names, settings, manifest)
     method = "optimal" if costs is not None and len(set(costs)) > 1 else "neyman"
     notes.append(f"costs: {cost_src}")
