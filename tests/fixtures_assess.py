@@ -25,8 +25,12 @@ def fake_manifest(strata=(("North basin", 0.5), ("South basin", 0.3), ("Reed bay
             "itinerary": {}}
 
 
-def fake_results(values: dict[str, list[float]], **kw) -> SimpleNamespace:
-    strata = [SimpleNamespace(name=k, values=tuple(v), censored=("",) * len(v)) for k, v in values.items()]
+def fake_results(values: dict[str, list[float]], *, days: dict[str, tuple] | None = None,
+                 censored: dict[str, tuple] | None = None, **kw) -> SimpleNamespace:
+    """``days``: the field day of each value per stratum (else none is known); ``censored``: "", "left", "right"."""
+    strata = [SimpleNamespace(name=k, values=tuple(v),
+                              censored=tuple((censored or {}).get(k, ("",) * len(v))),
+                              **({} if days is None else {"days": tuple(days[k])})) for k, v in values.items()]
     base = dict(strata=strata, flags=(), notes=(), order=(), range_exceeded=(), outside_support=())
     base.update(kw)
     return SimpleNamespace(**base)

@@ -247,8 +247,9 @@ def test_forbidden_phrasing_never_appears(name, tmp_path, capsys):
 
 def test_decision_wording_below(tmp_path, capsys):
     folder = tmp_path / "design"
-    manifest, rows = write_design_folder(folder, n=(30, 20, 15), range=200, criterion=126, bound="hoeffding")
-    vals = {r["site_id"]: "60" if i % 2 else "70" for i, r in enumerate(rows) if r["role"] == "primary"}
+    # 65 primaries on 10 field days: Hoeffding counts the 10 days (half-width 100 sqrt(ln(40) / 20) = 43)
+    manifest, rows = write_design_folder(folder, n=(30, 20, 15), range=100, criterion=126, bound="hoeffding")
+    vals = {r["site_id"]: "10" if i % 2 else "20" for i, r in enumerate(rows) if r["role"] == "primary"}
     res = write_csv(tmp_path / "r.csv", fill(rows, vals))
     code, out, err = run(["assess", str(folder), str(res), "--json"], capsys)
     data = json.loads(out)

@@ -46,7 +46,7 @@ def assess_command(out: Path, results: Path, as_json: bool, next_plan: Path | No
         _check_next_plan(next_plan, out, results, overwrite)
     manifest, rows = read_design_folder(out)
     res = read_results(results, manifest, rows, strict=not lenient)
-    a = assess(res, manifest, adjust=adjust)
+    a = assess(res, manifest, adjust=adjust, schedule_rows=rows)
     written = {}
     if next_plan is not None:
         written["next_plan"] = str(write_next_plan(a, manifest, next_plan, design_folder=out,

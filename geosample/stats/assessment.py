@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
-from typing import Any
+from typing import Any, Sequence
 
 import numpy as np
 
@@ -36,6 +36,7 @@ from .intervals import (
     bernstein_half_width,
     cantelli_half_width,
     chebyshev_half_width,
+    cluster_t_half_width,
     declared_support,
     hoeffding_half_width,
     stratified_mean,
@@ -44,7 +45,7 @@ from .intervals import (
 )
 from .reallocation import Reallocation, reallocate
 
-__all__ = ["StratumEstimate", "Sequential", "Assessment", "assess"]
+__all__ = ["StratumEstimate", "Sequential", "Assessment", "assess", "stratified_interval"]
 
 
 @dataclass(frozen=True)
@@ -181,9 +182,77 @@ class _Stratum:
     n_planned: int | None
     censored_left: int
     censored_right: int
+    day: np.ndarray | None = None  # field day of each value: an index into the season's used days, in date order
 
 
-def _stratum_inputs(results: Any, manifest: dict) -> list[_Stratum]:
+def _day_key(label: str) -> tuple:
+    return (0, int(label), "") if label.isdigit() else (1, 0, label)
+
+
+def _day_labels(results: Any, schedule_rows: Sequence[dict] | None) -> dict[str, list[str]] | None:
+    """Per stratum, the field day of each used value, or None when nothing says which day a value is from.
+
+    A primary takes its schedule row's ``day``; a reserve (no day in the schedule) the drawn
+    field day whose ``visit_date`` is the date it was sampled, else a day of its own.
+    Results objects may carry the labels themselves (``StratumResults.days``).
+    """
+    given = {s.name: getattr(s, "days", None) for s in results.strata}
+    if given and all(v is not None for v in given.values()):
+        return {k: [str(x) for x in v] for k, v in given.items()}
+    if not schedule_rows:
+        return None
+    sched = {str(r.get("site_id") or "").strip(): r for r in schedule_rows}
+    date_day: dict[str, str] = {}
+    for r in schedule_rows:
+        d, date = str(r.get("day") or "").strip(), str(r.get("visit_date") or "").strip()
+        if d and date:
+            date_day.setdefault(date, d)
+    recs = {r.row: r for r in getattr(results, "records", ())}
+    out: dict[str, list[str]] = {}
+    for sr in results.strata:
+        labels = []
+        for row in getattr(sr, "rows", ()):
+            rec = recs.get(row)
+            d = str((sched.get(rec.site_id) or {}).get("day") or "").strip() if rec is not None else ""
+            if not d and rec is not None and rec.sampled_at is not None:
+                d = date_day.get(rec.sampled_at.date().isoformat(), "")
+            labels.append(d or f"unscheduled {rec.site_id if rec is not None else row}")
+        out[sr.name] = labels
+    return out
+
+
+def _counts(strata: Sequence[_Stratum]) -> np.ndarray | None:
+    """Results per field day (rows, days with results only) and stratum (columns); None without day labels."""
+    if any(s.day is None for s in strata):
+        return None
+    k = max((int(s.day.max()) for s in strata if s.day.size), default=-1) + 1
+    c = np.zeros((k, len(strata)), int)
+    for h, s in enumerate(strata):
+        np.add.at(c[:, h], s.day.astype(int), 1)
+    return c[c.sum(axis=1) > 0]
+
+
+def _clustered(strata: Sequence[_Stratum]) -> bool:
+    """Whether some field day carries more than one result (then days, not results, are the units)."""
+    c = _counts(strata)
+    return c is not None and bool((c.sum(axis=1) > 1).any())
+
+
+def _unit_strata(strata: Sequence[_Stratum]) -> list[_Stratum]:
+    """Each stratum's field-day means, in date order, as its units (for bernstein and betting)."""
+    out = []
+    for s in strata:
+        if s.day is None or s.y.size == 0:
+            out.append(s)
+            continue
+        u, inv = np.unique(s.day, return_inverse=True)
+        means = np.bincount(inv, weights=s.y) / np.bincount(inv)
+        out.append(replace(s, y=means, day=u))
+    return out
+
+
+def _stratum_inputs(results: Any, manifest: dict, schedule_rows: Sequence[dict] | None = None
+                    ) -> tuple[list[_Stratum], bool]:
     settings = manifest.get("settings", {})
     statistic = settings.get("survey", {}).get("statistic", "mean")
     frame = manifest.get("frame", {}).get("strata", [])
@@ -199,7 +268,13 @@ def _stratum_inputs(results: Any, manifest: dict) -> list[_Stratum]:
         cl = sum(1 for c in (sr.censored if sr else ()) if c == "left")
         cr = sum(1 for c in (sr.censored if sr else ()) if c == "right")
         out.append(_Stratum(name, float(fs["weight"]), y, lower, L, planned.get(name), cl, cr))
-    return out
+    labels = _day_labels(results, schedule_rows)
+    if labels is None:
+        return out, False
+    every = sorted({d for v in labels.values() for d in v}, key=_day_key)
+    index = {d: i for i, d in enumerate(every)}
+    return [replace(s, day=np.array([index[d] for d in labels.get(s.name, ())], dtype=int))
+            if len(labels.get(s.name, ())) == s.y.size else s for s in out], True
 
 
 def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str, direction: str,
@@ -215,15 +290,18 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
     seqs: list[BettingSequence] = []
     if bound in ("chebyshev", "cantelli", "hoeffding"):
         L = np.array([s.L for s in strata], float)
+        counts = _counts(strata)
         if bound == "chebyshev":
-            d = chebyshev_half_width(w, n_h, L, confidence)
+            d = chebyshev_half_width(w, n_h, L, confidence, counts=counts)
             if sides == "one":
                 notes.append("Chebyshev used one-sided: valid, conservative (Cantelli is the one-sided form)")
         elif bound == "cantelli":
-            d = cantelli_half_width(w, n_h, L, confidence)
+            d = cantelli_half_width(w, n_h, L, confidence, counts=counts)
         else:
-            d = hoeffding_half_width(w, n_h, L, confidence, sides)
+            d = hoeffding_half_width(w, n_h, L, confidence, sides, counts=counts)
         df = None
+    elif bound == "t" and _clustered(strata):
+        d, df = cluster_t_half_width(w, [s.y for s in strata], [s.day for s in strata], confidence, sides)
     elif bound == "t":
         sds = np.array([s.y.std(ddof=1) for s in strata])
         d_arr, df_arr = t_half_width(w, n_h, sds, confidence, sides)
@@ -274,6 +352,25 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
     if sides == "one":
         lo, hi = (-math.inf, hi) if direction == "below" else (lo, math.inf)
     return Interval(est, lo, hi, confidence, bound, sides, float(d), df, tuple(notes)), None, seqs
+
+
+def stratified_interval(bound: str, values: Sequence[Sequence[float]], weights: Sequence[float],
+                        lowers: Sequence[float], ranges: Sequence[float], confidence: float, *, sides: str = "two",
+                        direction: str = "below", days: Sequence[Sequence[int]] | None = None) -> Interval:
+    """The plan's interval for a stratified mean from numbers alone (no files, no wording).
+
+    ``values[h]``: stratum h's results on the analysis scale; ``days[h]``: the field
+    day (an integer, comparable across strata, in date order) of each. With days,
+    the field days are the independent units, as in :func:`assess`: Chebyshev,
+    Cantelli and Hoeffding on the days' contributions, t on the day-level variance,
+    empirical Bernstein and betting on each stratum's day means.
+    """
+    strata = [_Stratum(f"s{h}", float(w), np.asarray(v, float), float(lo), float(L), None, 0, 0,
+                       None if days is None else np.asarray(days[h], int))
+              for h, (v, w, lo, L) in enumerate(zip(values, weights, lowers, ranges))]
+    if bound in ("bernstein", "betting") and _clustered(strata):
+        strata = _unit_strata(strata)
+    return _interval(bound, strata, confidence, sides, direction)[0]
 
 
 def _void_interval(bound: str, strata: list[_Stratum], confidence: float, sides: str, direction: str
@@ -337,7 +434,7 @@ def _established_after(strata: list[_Stratum], seqs: list[BettingSequence], orde
 
 def _sequential(bound: str, iv: Interval, strata: list[_Stratum], seqs: list[BettingSequence],
                 order: list[tuple[int, int]], criterion: float | None, decision: str | None,
-                direction: str, sides: str) -> Sequential:
+                direction: str, sides: str, unit: str = "samples") -> Sequential:
     n = sum(s.y.size for s in strata)
     if criterion is None:
         return Sequential(None, None, "no criterion: nothing to establish")
@@ -347,7 +444,7 @@ def _sequential(bound: str, iv: Interval, strata: list[_Stratum], seqs: list[Bet
     if decision in ("below", "above"):
         if established is None:
             established = n
-        note = (f"established after {established} samples" + (
+        note = (f"established after {established} {unit}" + (
             " (the betting sequence is valid at every sample size, so this may be checked after every field day)"
             if bound == "betting" else
             f" (the {bound} interval holds at a sample size fixed in advance; checking after every field day and "
@@ -389,7 +486,8 @@ def _frame_label(manifest: dict) -> str:
     return f"the {size}sampling frame of \u201c{title}\u201d ({H} strat{'um' if H == 1 else 'a'})"
 
 
-def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
+def assess(results: Any, manifest: dict, *, adjust: str = "holm", schedule_rows: Sequence[dict] | None = None
+           ) -> Assessment:
     """The estimate, interval, decision, statement, per-stratum comparisons and next allocation.
 
     Parameters
@@ -400,6 +498,9 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
         The design folder's ``manifest.json``.
     adjust : {"holm", "bh", "bonferroni", "none"}
         Adjustment of the per-stratum p-values.
+    schedule_rows : list of dict, optional
+        The design's ``schedule.csv`` rows: their ``day`` column says which field day
+        each result is from. Field days are the independent units of every bound.
 
     Raises
     ------
@@ -416,8 +517,11 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
     confidence = float(size.get("confidence", 0.95))
     sides = size.get("sides", "two")
     planned = size.get("bound", "chebyshev")
-    strata = _stratum_inputs(results, manifest)
+    strata, have_days = _stratum_inputs(results, manifest, schedule_rows)
     notes: list[str] = list(getattr(results, "notes", ()))
+    if not have_days:
+        notes.append("no field-day information (the schedule's day column): each result is taken as a field day "
+                     "of its own; if several samples were taken on one day, the stated confidence may not hold")
     empty = [s.name for s in strata if s.y.size == 0]
     if empty:
         raise ResultsError(
@@ -454,6 +558,20 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
                 + " needs at least 2 per stratum to estimate the spread. Sample a reserve there (in reserve_rank "
                 "order), or declare a range that the results respect.")
 
+    clustered = _clustered(strata)
+    raw = strata
+    if clustered:
+        k_days = int(_counts(strata).shape[0])
+        if bound == "t" and k_days < 2:
+            raise ResultsError("every result is from one field day; the t interval needs results from at least 2 "
+                               "days to estimate how much days differ. Sample on further drawn days.")
+        notes.append(f"the {k_days} field days are the independent units of the {planned} bound "
+                     f"({sum(s.y.size for s in strata)} results): samples of one day share its weather and time of "
+                     "day, so the guarantee counts days, not samples"
+                     + ("; each stratum's day means are its units" if bound in ("bernstein", "betting") else ""))
+        if bound in ("bernstein", "betting"):
+            strata = _unit_strata(strata)
+
     def shown(group: list[_Stratum], path: bool = False):
         if range_void and bound != "t":
             return _void_interval(bound, group, confidence, sides, direction)
@@ -479,17 +597,19 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
     # per-stratum figures and comparisons
     per: list[StratumEstimate] = []
     pvals: list[float] = []
-    for s in strata:
-        sd = float(s.y.std(ddof=1)) if s.y.size > 1 else None
-        one = shown([_Stratum(s.name, 1.0, s.y, s.lower, s.L, s.n_planned, 0, 0)])[0]
+    for s, r in zip(strata, raw):
+        sd = float(r.y.std(ddof=1)) if r.y.size > 1 else None
+        one = shown([_Stratum(s.name, 1.0, s.y, s.lower, s.L, s.n_planned, 0, 0, s.day)])[0]
         if clip:
             one = _clip(one, s.lower, math.inf)
         p = None
         if a_crit is not None and not (range_void and (s.name in void_strata or no_range)):
+            c1 = _counts([s])
             p = stratum_pvalue(bound, s.y, a_crit, L=s.L, lower=s.lower, confidence=confidence, sides=sides,
-                               direction=direction)
+                               direction=direction, counts=None if c1 is None else c1[:, 0],
+                               days=s.day if _clustered([s]) else None)
             pvals.append(p)
-        per.append(StratumEstimate(s.name, s.weight, int(s.y.size), s.n_planned, float(s.y.mean()), sd, one.low,
+        per.append(StratumEstimate(s.name, s.weight, int(r.y.size), s.n_planned, float(s.y.mean()), sd, one.low,
                                    one.high, s.censored_left, s.censored_right, p))
     if a_crit is not None:
         adj = iter(adjust_pvalues(pvals, adjust))
@@ -511,10 +631,14 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
     name_index = {s.name: i for i, s in enumerate(strata)}
     order_idx = [(name_index[nm], k) for nm, k in order if nm in name_index] if order else [
         (h, k) for h, s in enumerate(strata) for k in range(s.y.size)]
+    if strata is not raw:  # day means as units: taken in date order
+        order_idx = [(h, j) for _, h, j in sorted((int(dy), h, j) for h, s in enumerate(strata)
+                                                 for j, dy in enumerate(s.day))]
     if range_void and a_crit is not None:
         seq = Sequential(None, None, f"no decision: {void_reason}, which voids the {planned} bound's guarantee")
     else:
-        seq = _sequential(bound, iv, strata, seqs, order_idx, a_crit, decision, direction, sides)
+        seq = _sequential(bound, iv, strata, seqs, order_idx, a_crit, decision, direction, sides,
+                          unit="field days" if strata is not raw else "samples")
     # back to the original scale and wording
     geo = statistic == "geomean"
     est = 10 ** iv.estimate if geo else iv.estimate
@@ -552,7 +676,7 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm") -> Assessment:
         statistic=statistic, parameter=survey.get("parameter", ""), units=units, frame_label=label, season=season,
         estimate=float(est), low=None if low is None else float(low), high=None if high is None else float(high),
         interval=iv, confidence=confidence, bound=bound, planned_bound=planned, sides=sides, direction=direction,
-        criterion=criterion, n=int(sum(s.y.size for s in strata)), n_planned=alloc.get("total"),
+        criterion=criterion, n=int(sum(s.y.size for s in raw)), n_planned=alloc.get("total"),
         decision=decision, statement=text, decision_text=dtext, assumption=BOUND_ASSUMPTIONS[bound],
         strata=tuple(per), adjust=adjust, sequential=seq, next_allocation=realloc,
         flags=tuple(getattr(results, "flags", ())), notes=tuple(notes), range_void=range_void,

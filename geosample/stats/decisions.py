@@ -31,21 +31,26 @@ ADJUST_METHODS = ("holm", "bh", "bonferroni", "none")
 
 BOUND_ASSUMPTIONS = {
     "chebyshev": "Chebyshev's inequality with each stratum's sd bounded by half its declared range "
-                 "(Popoviciu); it needs only that the sites and times were drawn at random (pairwise "
-                 "independence) and that no result can differ from another by more than the declared range",
-    "cantelli": "Cantelli's one-sided inequality with each stratum's sd bounded by half its declared range; "
-                "it needs only random sites and times and results that respect the declared range",
-    "hoeffding": "Hoeffding's inequality for the stratified mean; it needs independent random sites and times "
-                 "and results that respect the declared range",
-    "bernstein": "the empirical Bernstein inequality (Maurer & Pontil 2009) in each stratum at an equal share "
-                 "of the error probability; it needs independent random sites and times and results that "
-                 "respect the declared range",
-    "t": "Student's t with the sample sds and Welch-Satterthwaite degrees of freedom; its confidence is "
-         "approximate: it assumes the stratified mean is close to normally distributed, which needs enough "
-         "samples per stratum when the results are skewed",
-    "betting": "a betting confidence sequence (Waudby-Smith & Ramdas 2024) for results inside the declared "
-               "range; it needs independent random sites and times, and stays valid when the results are "
-               "looked at after every field day and sampling stops as soon as the claim is established",
+                 "(Popoviciu), on the field days' contributions to the stratified mean; it needs only that the "
+                 "field days, and the sites and times within them, were drawn at random (samples of one day share "
+                 "its weather and time of day, so the days are the units) and that no result can differ from "
+                 "another by more than the declared range",
+    "cantelli": "Cantelli's one-sided inequality with each stratum's sd bounded by half its declared range, on the "
+                "field days' contributions; it needs only random field days, sites and times and results that "
+                "respect the declared range",
+    "hoeffding": "Hoeffding's inequality for the stratified mean as a sum of the field days' contributions, each "
+                 "bounded by the declared range; it needs the field days, and the sites and times within them, "
+                 "drawn at random and results that respect the declared range",
+    "bernstein": "the empirical Bernstein inequality (Maurer & Pontil 2009) on each stratum's field-day means at "
+                 "an equal share of the error probability; it needs the field days, and the sites and times within "
+                 "them, drawn at random and results that respect the declared range",
+    "t": "Student's t with the day-level variance (the field days as units; Welch-Satterthwaite degrees of freedom "
+         "when every day has one sample); its confidence is approximate: it assumes the stratified mean is close "
+         "to normally distributed, which needs enough field days when the results are skewed or days differ a lot",
+    "betting": "a betting confidence sequence (Waudby-Smith & Ramdas 2024) on each stratum's field-day means inside "
+               "the declared range; it needs the field days, and the sites and times within them, drawn at random, "
+               "and stays valid when the results are looked at after every field day and sampling stops as soon "
+               "as the claim is established",
 }
 
 
@@ -83,16 +88,25 @@ def adjust_pvalues(p, method: str = "holm") -> np.ndarray:
 
 
 def stratum_pvalue(bound: str, values, criterion: float, *, L: float | None, lower: float,
-                   confidence: float, sides: str, direction: str) -> float:
+                   confidence: float, sides: str, direction: str, counts=None, days=None) -> float:
     """p-value of one stratum's comparison with the criterion, from the same bound.
 
     For the range bounds it is the smallest error probability at which the
     stratum's interval excludes the criterion; for ``t`` the t-test; for
     ``betting`` one over the largest capital reached at the criterion. One-sided
     plans test against the planned direction only (p = 1 on the other side).
+
+    ``counts`` (results per field day) make the range bounds count days: n becomes
+    ``n^2 / sum_i c_i^2`` (``n`` when every day has one result); ``days`` (the field day
+    of each value) give t the day-level variance with ``k - 1`` degrees of freedom.
+    Bernstein and betting take day means as ``values`` when days carry several results.
     """
     v = np.asarray(values, float)
     n = v.size
+    n_eff = float(n)
+    if counts is not None and n:
+        c = np.asarray(counts, float)
+        n_eff = float(c.sum() ** 2 / np.sum(c**2))
     if n == 0:
         return 1.0
     mean = float(v.mean())
@@ -103,11 +117,19 @@ def stratum_pvalue(bound: str, values, criterion: float, *, L: float | None, low
 
         if n < 2:
             return 1.0
-        sd = float(v.std(ddof=1))
-        if sd == 0:
+        if days is not None:
+            labels, inv = np.unique(np.asarray(days), return_inverse=True)
+            k = labels.size
+            if k < 2:
+                return 1.0
+            u = np.bincount(inv, weights=(v - mean) / n, minlength=k)
+            se, df = math.sqrt(k / (k - 1) * float(np.sum(u**2))), k - 1
+        else:
+            se, df = float(v.std(ddof=1)) / math.sqrt(n), n - 1
+        if se == 0:
             return 0.0 if diff > 0 else 1.0
-        tstat = diff / (sd / math.sqrt(n))
-        return float(min(1.0, (2 if sides == "two" else 1) * stats.t.sf(tstat, n - 1)))
+        tstat = diff / se
+        return float(min(1.0, (2 if sides == "two" else 1) * stats.t.sf(tstat, df)))
     if bound == "betting":
         x = np.clip((v - lower) / L, 0, 1)
         m = (criterion - lower) / L
@@ -120,13 +142,13 @@ def stratum_pvalue(bound: str, values, criterion: float, *, L: float | None, low
     if diff <= 0:
         return 1.0
     if bound in ("chebyshev", "cantelli"):
-        V = (L / 2.0) ** 2 / n
+        V = (L / 2.0) ** 2 / n_eff
         if bound == "cantelli":
             return float(min(1.0, V / (V + diff**2)))
         return float(min(1.0, V / diff**2))
     if bound == "hoeffding":
         k = 2.0 if sides == "two" else 1.0
-        return float(min(1.0, k * math.exp(-2.0 * n * diff**2 / L**2)))
+        return float(min(1.0, k * math.exp(-2.0 * n_eff * diff**2 / L**2)))
     if bound == "bernstein":
         if n < 2:
             return 1.0

@@ -42,6 +42,8 @@ __all__ = [
     "hoeffding_half_width",
     "welch_df",
     "t_half_width",
+    "day_ranges",
+    "cluster_t_half_width",
     "bernstein_half_width",
 ]
 
@@ -108,15 +110,36 @@ def stratified_mean(weights: Sequence[float], means: np.ndarray) -> np.ndarray:
     return np.asarray(means, dtype=float) @ np.asarray(weights, dtype=float)
 
 
-def _range_variance(weights, n_h, ranges) -> float:
+def day_ranges(weights, ranges, counts) -> np.ndarray:
+    """The range of each field day's contribution to the stratified mean: ``R_i = sum_h W_h L_h c_hi / n_h``.
+
+    ``counts`` is a (k, H) array: results of stratum h taken on day i (``n_h`` its
+    column sums). The stratified mean ``sum_h W_h ybar_h`` is the sum over days of
+    ``Z_i = sum_{j on day i} W_h(j) y_j / n_h(j)``, and Z_i lies in a range of length R_i.
+    With one result per day this is ``W_h L_h / n_h`` for each result.
+    """
+    c = np.asarray(counts, float)
+    w = np.asarray(weights, float)
+    L = np.broadcast_to(np.asarray(ranges, float), w.shape)
+    n = c.sum(axis=0)
+    return c @ np.where(n > 0, w * L / np.where(n > 0, n, 1.0), 0.0)
+
+
+def _range_variance(weights, n_h, ranges, counts=None) -> float:
+    if counts is not None:
+        return float(np.sum((day_ranges(weights, ranges, counts) / 2.0) ** 2))
     w = np.asarray(weights, float)
     n = np.asarray(n_h, float)
     L = np.broadcast_to(np.asarray(ranges, float), w.shape)
     return float(np.sum(w**2 * (L / 2.0) ** 2 / n))
 
 
-def chebyshev_half_width(weights, n_h, ranges, confidence: float) -> float:
+def chebyshev_half_width(weights, n_h, ranges, confidence: float, *, counts=None) -> float:
     """Chebyshev half-width ``sqrt(V / a)``, ``V = sum W_h^2 (L_h / 2)^2 / n_h``.
+
+    With ``counts`` (results per field day and stratum, (k, H)) the days are the
+    independent units: ``V = sum_i (R_i / 2)^2`` with :func:`day_ranges`, which is the
+    formula above when every day has one result.
 
     Used one-sided it is valid but conservative (Cantelli is the one-sided form).
 
@@ -126,17 +149,21 @@ def chebyshev_half_width(weights, n_h, ranges, confidence: float) -> float:
     14.907
     """
     a = _alpha(confidence)
-    return math.sqrt(_range_variance(weights, n_h, ranges) / a)
+    return math.sqrt(_range_variance(weights, n_h, ranges, counts) / a)
 
 
-def cantelli_half_width(weights, n_h, ranges, confidence: float) -> float:
-    """One-sided Cantelli half-width ``sqrt(V (1 - a) / a)``."""
+def cantelli_half_width(weights, n_h, ranges, confidence: float, *, counts=None) -> float:
+    """One-sided Cantelli half-width ``sqrt(V (1 - a) / a)`` (``counts``: as for Chebyshev)."""
     a = _alpha(confidence)
-    return math.sqrt(_range_variance(weights, n_h, ranges) * (1 - a) / a)
+    return math.sqrt(_range_variance(weights, n_h, ranges, counts) * (1 - a) / a)
 
 
-def hoeffding_half_width(weights, n_h, ranges, confidence: float, sides: str = "two") -> float:
+def hoeffding_half_width(weights, n_h, ranges, confidence: float, sides: str = "two", *,
+                         counts=None) -> float:
     """Hoeffding half-width for the stratified mean: ``sqrt(S ln(k / a) / 2)``, ``S = sum W_h^2 L_h^2 / n_h``.
+
+    With ``counts`` (results per field day and stratum) the days are the independent
+    terms: ``S = sum_i R_i^2`` with :func:`day_ranges`.
 
     Examples
     --------
@@ -146,7 +173,10 @@ def hoeffding_half_width(weights, n_h, ranges, confidence: float, sides: str = "
     a = _alpha(confidence)
     w = np.asarray(weights, float)
     L = np.broadcast_to(np.asarray(ranges, float), w.shape)
-    S = float(np.sum(w**2 * L**2 / np.asarray(n_h, float)))
+    if counts is not None:
+        S = float(np.sum(day_ranges(w, L, counts) ** 2))
+    else:
+        S = float(np.sum(w**2 * L**2 / np.asarray(n_h, float)))
     k = 2.0 if sides == "two" else 1.0
     return math.sqrt(S * math.log(k / a) / 2.0)
 
@@ -182,6 +212,36 @@ def t_half_width(weights, n_h, sds, confidence: float, sides: str = "two") -> tu
     df = welch_df(w, n, sds)
     q = 1 - a / 2 if sides == "two" else 1 - a
     return stats.t.ppf(q, df) * se, df
+
+
+def cluster_t_half_width(weights, values, days, confidence: float, sides: str = "two") -> tuple[float, float]:
+    """Student-t half-width with the day-level (ultimate cluster) variance of the stratified mean.
+
+    ``values[h]`` are stratum h's results and ``days[h]`` the field day (an integer
+    label) of each. The stratified mean's residual is split by day,
+    ``u_i = sum_h (W_h / n_h) sum_{j in h on day i} (y_j - ybar_h)``, and
+    ``v = k / (k - 1) sum_i u_i^2`` with ``k`` days, ``df = k - 1`` (Taylor
+    linearisation with days as primary units; Cochran 1977 ch. 10 and 11; approximate).
+    With equal visits per day and one stratum it is the t interval on the day means.
+    """
+    from scipy import stats
+
+    a = _alpha(confidence)
+    labels = np.unique(np.concatenate([np.asarray(d) for d in days]))
+    k = labels.size
+    if k < 2:
+        raise ValueError("the t interval on field days needs results from at least 2 days")
+    u = np.zeros(k)
+    for w, y, d in zip(weights, values, days):
+        y = np.asarray(y, float)
+        if y.size == 0:
+            continue
+        idx = np.searchsorted(labels, np.asarray(d))
+        np.add.at(u, idx, w / y.size * (y - y.mean()))
+    v = k / (k - 1) * float(np.sum(u**2))
+    q = 1 - a / 2 if sides == "two" else 1 - a
+    df = float(k - 1)
+    return float(stats.t.ppf(q, df) * math.sqrt(v)), df
 
 
 def bernstein_half_width(n: int, sd: float, L: float, delta: float) -> float:
