@@ -304,9 +304,14 @@ def test_browser_runs_no_user_script(untrusted_design, name):
             page.goto((untrusted_design / name).as_uri())
             page.wait_for_load_state("load")
             if name == "map.html":
-                page.wait_for_selector(".gs-site")
-                page.locator(".gs-site").first.click()  # open a popup: its html holds the stratum name
+                page.wait_for_function("window.geosampleMap !== undefined")
+                # Tap the first site (canvas markers: by its pixel) to open a popup holding the stratum name.
+                site = page.evaluate("window.geosampleMap.design.sites[0]")
+                xy = page.evaluate("([a, b]) => window.geosampleMap.point(a, b)", [site["lat"], site["lon"]])
+                page.mouse.click(*xy)
                 page.locator(".leaflet-popup-content").wait_for()
+                assert site["stratum"] in page.locator(".leaflet-popup-content").inner_text()
+                assert site["stratum"] in (SCRIPT, FORMULA)
             assert page.evaluate("typeof window.__pwn") == "undefined"
             assert "window.__pwn" in page.inner_text("body")
         finally:

@@ -19,15 +19,17 @@ from pathlib import Path
 
 import geopandas
 import gpxpy
+import numpy as np
 import pandas as pd
 import pyogrio
 import pyproj
 import pytest
+import shapely
 
 from fixtures_design import CALENDAR, LAUNCH_XY, SITES, TZ, VISITS, build_design, with_two_trips
 from geosample.export import PACKAGE_FILES, write_package
 from geosample.export.gpx import write_gpx
-from geosample.export.map import render_map, write_map
+from geosample.export.map import design_data, read_design_block, render_map, write_map
 from geosample.export.report import claim_wording, render_report, report_context, write_report
 from geosample.export.table import neutralise_formula, schedule_rows, write_schedule
 
@@ -305,33 +307,90 @@ def test_map_is_self_contained(package):
 
 def test_map_content(package):
     text = package["map.html"].read_text(encoding="utf-8")
-    for sid in ALL_IDS:
-        assert f"\\u003cb\\u003e{sid}\\u003c/b\\u003e" in text  # each site's popup title (JSON-escaped HTML)
-    for sid in PRIMARY_IDS:  # tooltips, JSON-escaped ("\u00b7" is the middle dot)
-        assert text.count(f"{sid} \\u00b7 day ") == 1
-    for sid in RESERVE_IDS:
-        assert text.count(f"{sid} \\u00b7 reserve ") == 1
-    assert text.count("gs-route") >= 2
-    assert "L.control.scale()" in text
-    assert "North basin" in text and "South basin" in text and "Closed: no sampling" in text
-    # One layer per field day, added to the map; the reserves' layer is listed but off (not added).
-    control = text[text.index("_layers = {"):]
-    control = control[:control.index("};")]
-    overlays = re.findall(r'"((?:[^"\\]|\\.)*)"\s*:\s*(feature_group_\d+)', control)
-    day_layers = [v for k, v in overlays if re.search(r"Day \d+ \\u00b7 2027-06-1[46]", k)]
-    assert len(day_layers) == 2
-    assert all(f"{v}.addTo(map_" in text for v in day_layers)
-    reserves = [v for k, v in overlays if k.startswith("Reserves (3; use in rank order)")]
-    assert len(reserves) == 1 and f"{reserves[0]}.addTo(" not in text
+    data = read_design_block(text)
+    assert data["format"] == "geosample-map-design/1"
+    sites = {s["id"]: s for s in data["sites"]}
+    assert sorted(sites) == sorted(ALL_IDS)
+    for sid in PRIMARY_IDS:  # date, planned time and stop as the fixture states them
+        date, (hh, mm), order = VISITS[sid]
+        s = sites[sid]
+        assert (s["date"], s["order"], s["role"]) == (date.isoformat(), order, "primary")
+        assert s["planned_time"] == dt.datetime(date.year, date.month, date.day, hh, mm, tzinfo=TZ).isoformat()
+        assert s["label"] == str(order)
+        # Day numbers count only days with visits: 2027-06-15 has none, so 2027-06-16 is day 2.
+        assert s["day"] == {dt.date(2027, 6, 14): 1, dt.date(2027, 6, 16): 2}[date]
+    for sid, _, role, rank, x, y in SITES:
+        lon, lat = REF.transform(x, y)
+        assert sites[sid]["lat"] == pytest.approx(lat, abs=1e-6) and sites[sid]["lon"] == pytest.approx(lon, abs=1e-6)
+    # Reserve labels: stratum code and rank, unique in the design (R1 exists in both strata).
+    labels = {sid: sites[sid]["label"] for sid in RESERVE_IDS}
+    assert labels == {"NB-004": "NB-R1", "NB-005": "NB-R2", "SB-004": "SB-R1"}
+    assert [(d["day"], d["date"], d["sites"]) for d in data["days"]] == [(1, "2027-06-14", 3), (2, "2027-06-16", 3)]
+    assert [(r["day"], r["name"], r["sites"]) for r in data["routes"]] == [
+        (1, "Day 1 2027-06-14", ["NB-001", "NB-002", "NB-003"]), (2, "Day 2 2027-06-16", ["SB-001", "SB-002", "SB-003"])]
+    assert [s["name"] for s in data["strata"]] == ["North basin", "South basin"]
+    assert "Closed: no sampling" in text and "simplified for display" in text
+    # The page holds no prebuilt popup per site: popups are built from the data when tapped.
+    assert "bindPopup" not in text.split("<script>\n/* @preserve", 1)[0]
+    assert "gs-popup" not in text[text.index('id="geosample-design"'):text.index("</script>", text.index(
+        'id="geosample-design"'))]
+
+
+def test_map_design_block_is_the_design_not_the_bytes(design):
+    """Two renders give the same block; the block reads back with json (what verify compares)."""
+    a, b = render_map(design), render_map(design)
+    assert a == b
+    assert read_design_block(a) == json.loads(json.dumps(design_data(design)))
+    with pytest.raises(ValueError, match="geosample-design"):
+        read_design_block("<html></html>")
+
+
+def test_map_outlines_are_simplified_within_the_stated_tolerance(design):
+    """Decoded outlines lie within the stated tolerance (plus 1e-5 degree rounding) of the frame's strata."""
+    text = render_map(design)
+    layers = json.loads(re.search(r'id="geosample-layers">(.*?)</script>', text, re.S).group(1))
+    tol = layers["tolerance_m"]
+    assert 0 < tol < 5  # a 4.5 km lake: about 1 m
+    to_utm = pyproj.Transformer.from_crs("EPSG:4326", "EPSG:32616", always_xy=True)
+    for stratum, polys in zip(design.frame.strata, layers["strata"]):
+        for poly in polys:
+            for ring in poly:
+                lat = np.cumsum(ring[0::2]) / layers["scale"]
+                lon = np.cumsum(ring[1::2]) / layers["scale"]
+                x, y = to_utm.transform(lon, lat)
+                d = shapely.distance(shapely.points(x, y), stratum.geometry.boundary)
+                assert d.max() <= tol + 1.5  # 1e-5 degree is at most about 1.1 m
+
+
+def test_map_many_lakes_stays_under_10_mb():
+    """100,000 small lakes (about 2.2 million vertices): the outlines are simplified until the page fits."""
+    rng = np.random.default_rng(3)
+    n = 100_000
+    g = int(np.ceil(np.sqrt(n)))
+    cell = rng.permutation(g * g)[:n]
+    cx = 500_000 + (cell % g) * 1000.0 + 500
+    cy = 4_800_000 + (cell // g) * 1000.0 + 500
+    lakes = shapely.buffer(shapely.points(cx, cy), rng.uniform(50, 400, n), quad_segs=5)
+    water = shapely.MultiPolygon(list(lakes))
+    d = build_design()
+    stratum = dataclasses.replace(d.frame.strata[0], geometry=water, area_m2=water.area, weight=1.0)
+    frame = dataclasses.replace(d.frame, water=water, exclusions=None, strata=(stratum,), water_area_m2=water.area,
+                                access=())
+    text = render_map(dataclasses.replace(d, frame=frame))
+    layers = json.loads(re.search(r'id="geosample-layers">(.*?)</script>', text, re.S).group(1))
+    assert len(text.encode()) <= 10 * 2**20
+    assert layers["water"] == []  # the strata are the water: drawn once
+    assert len(layers["strata"][0]) == n  # every lake still drawn
+    assert f"to within {layers['tolerance_m']:.0f} m" in text
 
 
 def test_map_basemap_is_an_overlay_off_by_default(design):
     text = render_map(design, tiles="https://tiles.invalid/{z}/{x}/{y}.png", attribution="Test tiles")
-    tile = re.search(r"var (tile_layer_\d+) = L\.tileLayer", text)
-    assert tile is not None
-    assert f"{tile.group(1)}.addTo(" not in text  # not added: no tile request until turned on
-    assert "Basemap (needs a network)" in text
+    options = json.loads(re.search(r'id="geosample-options">(.*?)</script>', text, re.S).group(1))
+    assert options["tiles"] == "https://tiles.invalid/{z}/{x}/{y}.png" and options["attribution"] == "Test tiles"
     assert "tiles.invalid" not in render_map(design)
+    # The page only lists the tile layer in the layer list (checked for requests in test_map_browser.py).
+    assert "Basemap (needs a network)" in text
 
 
 def test_report_sections_and_figures(package, design):
@@ -390,9 +449,10 @@ def test_user_text_is_escaped(tmp_path, writer):
     assert html.escape(XSS) in text  # shown as text (legend, title, tables)
     assert not [a for t, a in _parse(text).tags if t == "script" and "alert" in str(a)]
     if writer == "map":
-        # Popups: HTML-escaped, then JSON with < > & escaped, so it can neither close the script nor become markup.
-        assert "\\u0026lt;script\\u0026gt;alert(1)\\u0026lt;/script\\u0026gt;" in text
-        assert text.count("<script>") == text.count("</script>")
+        # In the design block: JSON with < > & escaped, so it cannot close the script; the page shows it as text.
+        assert "\\u003cscript\\u003ealert(1)\\u003c/script\\u003e" in text
+        assert len(re.findall(r"<script\b", text)) == text.count("</script>") == 5
+        assert read_design_block(text)["strata"][0]["name"] == XSS
 
 
 def test_package_replaces_files_and_returns_paths(tmp_path, design):
@@ -412,11 +472,11 @@ def test_rows_fail_clearly_on_naive_times():
 
 
 def test_template_syntax_in_user_text_stays_text():
-    # folium passes the scripts it renders through jinja again; user text must never be read as a template.
+    # User text is data for the templates, never template source.
     d = build_design(("{{ 7*7 }}", "{% for x in y %}"), title="Survey {# not a comment #}")
     text = render_map(d)
     assert "<span>{{ 7*7 }} (3)</span>" in text  # legend, as written
-    assert "\\u0026#123;\\u0026#123; 7*7 \\u0026#125;\\u0026#125;" in text  # popups: braces as HTML entities
-    assert "Survey &#123;# not a comment #&#125;" in text
+    assert [s["name"] for s in read_design_block(text)["strata"]] == ["{{ 7*7 }}", "{% for x in y %}"]
+    assert "<title>Survey {# not a comment #}</title>" in text
     report = render_report(d)
     assert "{{ 7*7 }}" in report and "{% for x in y %}" in report

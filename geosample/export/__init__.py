@@ -14,7 +14,7 @@
 Every file is a function of the :class:`~geosample.model.Design` alone (no clock
 time, no random ids), so the same design gives byte-identical files: the
 manifest records their SHA-256 and ``geosample verify`` re-writes and compares them.
-Heavy libraries (folium, gpxpy, jinja2) are imported only when a file is written.
+Heavy libraries (gpxpy, jinja2) are imported only when a file is written.
 """
 from __future__ import annotations
 
