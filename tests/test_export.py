@@ -29,7 +29,7 @@ import shapely
 from fixtures_design import CALENDAR, LAUNCH_XY, SITES, TZ, VISITS, build_design, with_two_trips
 from geosample.export import PACKAGE_FILES, write_package
 from geosample.export.gpx import write_gpx
-from geosample.export.map import design_data, read_design_block, render_map, write_map
+from geosample.export.map import design_block, read_design_block, render_map, write_map
 from geosample.export.report import claim_wording, render_report, report_context, write_report
 from geosample.export.table import neutralise_formula, schedule_rows, write_schedule
 
@@ -340,7 +340,7 @@ def test_map_design_block_is_the_design_not_the_bytes(design):
     """Two renders give the same block; the block reads back with json (what verify compares)."""
     a, b = render_map(design), render_map(design)
     assert a == b
-    assert read_design_block(a) == json.loads(json.dumps(design_data(design)))
+    assert read_design_block(a) == json.loads(json.dumps(design_block(design)))
     with pytest.raises(ValueError, match="geosample-design"):
         read_design_block("<html></html>")
 

@@ -27,7 +27,7 @@ with the stratum code and rank, ``NB-R1``: use them only in rank order).
 
 The design block ``<script type="application/json" id="geosample-design">`` holds
 the sites, days and routes exactly as the page draws them (see
-:func:`design_data`); :func:`read_design_block` reads it back, so ``verify`` can
+:func:`design_block`); :func:`read_design_block` reads it back, so ``verify`` can
 compare the design in a page rather than its bytes.
 
 Offline: Leaflet's JavaScript and CSS (vendored in ``static/``, with its licence)
@@ -60,17 +60,19 @@ from typing import Any
 import numpy as np
 import pyproj
 import shapely
+from markupsafe import Markup
 
 from ..model import Design, Route, Visit
 from . import template_environment
-from .table import day_numbers, format_time, ordered_visits
+from .gpx import trips
+from .table import day_numbers, format_time, ordered_visits, reserve_label
 
 __all__ = ["FILE_NAME", "DESIGN_BLOCK_ID", "DESIGN_FORMAT", "STRATUM_COLOURS", "ROUTE_COLOURS", "ROUTE_DASHES",
-           "day_style", "reserve_label", "design_data", "read_design_block", "outline_tolerance_m", "render_map",
+           "day_style", "design_block", "read_design_block", "outline_tolerance_m", "render_map",
            "write_map"]
 
 FILE_NAME = "map.html"
-#: id of the ``<script type="application/json">`` element that holds :func:`design_data`.
+#: id of the ``<script type="application/json">`` element that holds :func:`design_block`.
 DESIGN_BLOCK_ID = "geosample-design"
 DESIGN_FORMAT = "geosample-map-design/1"
 LAYERS_BLOCK_ID = "geosample-layers"
@@ -145,35 +147,6 @@ def day_style(k: int) -> tuple[str, str | None]:
     return ROUTE_COLOURS[k % n], ROUTE_DASHES[(k // n) % len(ROUTE_DASHES)]
 
 
-def reserve_label(code: str, rank: int) -> str:
-    """The label of a reserve on the map and the day sheets: stratum code, ``-R``, rank.
-
-    Unique in a design, since stratum codes are unique and ranks are unique within a stratum.
-
-    Examples
-    --------
-    >>> reserve_label("NB", 1)
-    'NB-R1'
-    """
-    return f"{code}-R{int(rank)}"
-
-
-def _route_names(design: Design, days: dict[dt.date, int]) -> list[tuple[Route, str, int]]:
-    """Each route with its name ("Day 3 2027-06-14", "... trip 2") and its crew-day number."""
-    from .gpx import route_name
-
-    routes = sorted(design.schedule.routes, key=lambda r: (r.date, r.day_index))
-    per_date: dict[dt.date, list[Route]] = {}
-    for r in routes:
-        per_date.setdefault(r.date, []).append(r)
-    out = []
-    for date, trips in per_date.items():
-        day = days.get(date) or (sorted(per_date).index(date) + 1)
-        for k, r in enumerate(trips, start=1):
-            out.append((r, route_name(day, r, k, len(trips)), day))
-    return out
-
-
 # --------------------------------------------------------------------------- design data
 def _site(v: Visit, code: str, days: dict[dt.date, int]) -> dict:
     scheduled = v.role == "primary" and v.visit_date is not None
@@ -203,7 +176,7 @@ def _route(r: Route, name: str, day: int, first: dt.datetime | None, lab_minutes
     }
 
 
-def design_data(design: Design) -> dict:
+def design_block(design: Design) -> dict:
     """The design as the map draws it: strata, field days, routes, sites and access points.
 
     This is the content of the page's ``geosample-design`` block (sorted keys, JSON).
@@ -222,10 +195,11 @@ def design_data(design: Design) -> dict:
     holding_h = t.get("holding_h")
     by_id = {v.site_id: v for v in visits}
     routes = []
-    for r, name, day in _route_names(design, days):
+    for trip in trips(design):  # the GPX's names and crew-day numbers
+        r = trip.route
         first = min((by_id[s].planned_time for s in r.site_ids if s in by_id and by_id[s].planned_time),
                     default=None)
-        routes.append(_route(r, name, day, first, lab_minutes, holding_h))
+        routes.append(_route(r, trip.name, trip.day, first, lab_minutes, holding_h))
     day_list = []
     for date, k in sorted(days.items(), key=lambda kv: kv[1]):
         colour, dash = day_style(k - 1)
@@ -246,7 +220,7 @@ def design_data(design: Design) -> dict:
 
 
 def read_design_block(text: str) -> dict:
-    """The :func:`design_data` written in a ``map.html`` (its text), for comparing designs, not bytes.
+    """The :func:`design_block` written in a ``map.html`` (its text), for comparing designs, not bytes.
 
     Raises
     ------
@@ -405,7 +379,7 @@ def render_map(design: Design, *, tiles: str | None = None, attribution: str | N
     -------
     str
     """
-    data = design_data(design)
+    data = design_block(design)
     parts, tolerance = _outlines_within_budget(design)
     frame = design.frame
     has_closed = parts["closed"] != "[]"
@@ -416,8 +390,6 @@ def render_map(design: Design, *, tiles: str | None = None, attribution: str | N
     ctx = _legend_context(data, tolerance)
     ctx.update(has_closed=has_closed, has_access=bool(frame.access), has_water=options["has_water"])
     env = template_environment()
-    from markupsafe import Markup
-
     text = env.get_template("map.html.j2").render(
         title=data["title"], leaflet_css=Markup(leaflet_css), leaflet_js=Markup(leaflet_js),
         page_css=Markup(page_css), page_js=Markup(page_js), legend=ctx,
