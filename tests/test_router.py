@@ -71,3 +71,63 @@ def test_demo_routes_drawn_are_as_long_as_the_timetable_says(tmp_path):
         assert line.length == pytest.approx(r.length_m, rel=1e-9, abs=1e-6), r.date
     wet = design.frame.water.buffer(25.0)
     assert all(wet.covers(shapely.LineString(r.coords_xy)) for r in design.schedule.routes)
+
+
+PLAN = """[survey]
+title = "Seed property"
+parameter = "E. coli"
+units = "MPN/100 mL"
+timezone = "America/Chicago"
+[area]
+water = "water.gpkg"
+access = "access.gpkg"
+reach_m = 20000
+[size]
+tolerance = 20
+range = 80
+confidence = 0.9
+n = 24
+[draw]
+method = "balanced"
+reserve = 0
+[time]
+start = 2027-06-01
+end = 2027-06-30
+window = ["08:00", "17:00"]
+per_day = 6
+field_days = 4
+speed_kmh = 10
+minutes_on_site = 10
+"""
+
+
+def _bottle_lake():
+    """A round basin and a round bay joined by an 8 m wide, 10 m long neck (a narrow channel)."""
+    basin = shapely.Point(X0, Y0).buffer(600)
+    neck = shapely.box(X0 + 590, Y0 - 4, X0 + 620, Y0 + 4)
+    bay = shapely.Point(X0 + 760, Y0).buffer(150)
+    return shapely.union_all([basin, neck, bay]), (X0 - 590, Y0)
+
+
+def _island_lake():
+    return two_island_lake(), (X0 + 50, Y0 + 1500)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("make_lake", [_bottle_lake, _island_lake], ids=["narrow-channel", "two-islands"])
+def test_a_plan_valid_for_one_seed_is_valid_for_every_seed(make_lake, tmp_path):
+    """One launch, reach 20 km: every seed gives a design (no day whose sites no launch reaches)."""
+    import geopandas
+
+    lake, launch = make_lake()
+    geopandas.GeoDataFrame({"name": ["Lake"]}, geometry=[lake], crs=32614).to_file(tmp_path / "water.gpkg")
+    geopandas.GeoDataFrame({"name": ["Launch"]}, geometry=[shapely.Point(launch)], crs=32614).to_file(
+        tmp_path / "access.gpkg")
+    (tmp_path / "plan.toml").write_text(PLAN)
+    plan = load_plan(tmp_path / "plan.toml")
+    layers = load_layers(plan)
+    for seed in range(8):
+        design = make_design(plan, layers=layers, seed=seed)
+        assert len(design.schedule.routes) >= 4
+        for r in design.schedule.routes:
+            assert np.isfinite(r.length_m)
