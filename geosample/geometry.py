@@ -71,9 +71,20 @@ class CrsChoice:
 
 
 def _lonlat_bounds(gdf: Any) -> tuple[float, float, float, float]:
-    g = gdf if gdf.crs is not None and gdf.crs.to_epsg() == 4326 else gdf.to_crs(4326)
-    lon0, lat0, lon1, lat1 = (float(v) for v in g.total_bounds)
-    return lon0, lat0, lon1, lat1
+    """The layer's bounds in WGS 84 lon/lat.
+
+    Only the bounding box is transformed (its edges densified, as geopandas'
+    ``estimate_utm_crs`` does), not every vertex of the layer: for a projected
+    layer the result contains the exact lon/lat bounds of the data.
+    """
+    x0, y0, x1, y1 = (float(v) for v in gdf.total_bounds)
+    if gdf.crs is not None and gdf.crs.to_epsg() == 4326:
+        return x0, y0, x1, y1
+    from pyproj import CRS, Transformer
+
+    t = Transformer.from_crs(CRS.from_user_input(gdf.crs), "EPSG:4326", always_xy=True)
+    lon0, lat0, lon1, lat1 = t.transform_bounds(x0, y0, x1, y1, densify_pts=21)
+    return float(lon0), float(lat0), float(lon1), float(lat1)
 
 
 def _central_meridian(crs: Any) -> float | None:

@@ -969,9 +969,13 @@ def _clip_to_boxes(geoms: np.ndarray, x0: np.ndarray, y0: np.ndarray, x1: np.nda
 
 
 def _subdivide(geom: Any, max_vertices: int = 64) -> np.ndarray:
-    """Pieces of a polygon with at most ``max_vertices`` vertices each, by halving bounding boxes."""
+    """Pieces of a polygon with at most ``max_vertices`` vertices each, by halving bounding boxes.
+
+    A MultiPolygon (many lakes) starts from its parts: small lakes are pieces as they are,
+    and only the large ones are cut.
+    """
     done: list[np.ndarray] = []
-    todo = np.asarray([geom], dtype=object)
+    todo = np.asarray(shapely.get_parts(geom), dtype=object)
     while len(todo):
         small = shapely.get_num_coordinates(todo) <= max_vertices
         done.append(todo[small])
@@ -1008,8 +1012,13 @@ def _clipped_areas(cells: np.ndarray, region: _Region) -> np.ndarray:
         return areas
     pieces = region.pieces()
     tree = shapely.STRtree(pieces)
-    cell_idx, piece_idx = tree.query(cells[todo], predicate="intersects")
-    part = shapely.area(shapely.intersection(cells[todo][cell_idx], pieces[piece_idx]))
+    sub = cells[todo]
+    cell_idx, piece_idx = tree.query(sub, predicate="intersects")
+    shapely.prepare(sub)  # a cache: the cells' values are unchanged
+    whole = shapely.contains_properly(sub[cell_idx], pieces[piece_idx])  # a small lake inside one cell
+    part = shapely.area(pieces[piece_idx])
+    cut = np.flatnonzero(~whole)
+    part[cut] = shapely.area(shapely.intersection(sub[cell_idx[cut]], pieces[piece_idx[cut]]))
     areas[todo] = np.bincount(cell_idx, weights=part, minlength=todo.size)
     return areas
 
