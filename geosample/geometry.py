@@ -684,9 +684,11 @@ def _single_name(gdf: Any) -> str:
 
     col = name_column(gdf.columns)
     if col:
-        vals = {str(v) for v in gdf[col] if v is not None and str(v).strip() and str(v) != "nan"}
-        if len(vals) == 1:
-            return vals.pop()
+        # vectorised: a regional layer can hold a million names
+        text = gdf[col].dropna().astype(str)
+        text = text[(text.str.strip() != "") & (text != "nan")]
+        if len(text) and (text == text.iloc[0]).all():
+            return str(text.iloc[0])
     return "Whole frame"
 
 

@@ -86,7 +86,7 @@ reach_m = 20000
 tolerance = 20
 range = 80
 confidence = 0.9
-n = 24
+n = 30
 [draw]
 method = "balanced"
 reserve = 0
@@ -95,7 +95,7 @@ start = 2027-06-01
 end = 2027-06-30
 window = ["08:00", "17:00"]
 per_day = 6
-field_days = 4
+field_days = 5
 speed_kmh = 10
 minutes_on_site = 10
 """
@@ -128,6 +128,6 @@ def test_a_plan_valid_for_one_seed_is_valid_for_every_seed(make_lake, tmp_path):
     layers = load_layers(plan)
     for seed in range(8):
         design = make_design(plan, layers=layers, seed=seed)
-        assert len(design.schedule.routes) >= 4
+        assert len(design.schedule.routes) >= 5
         for r in design.schedule.routes:
             assert np.isfinite(r.length_m)

@@ -463,9 +463,32 @@ class _Region:
         return x0 + unit[:, 0] * (x1 - x0), y0 + unit[:, 1] * (y1 - y0)
 
 
-@functools.lru_cache(maxsize=32)
-def _region_cached(wkb: bytes) -> _Region:
-    return _Region(shapely.from_wkb(wkb))
+class _RegionCache:
+    """Prepared regions of the last few large geometries, keyed by the geometry object itself.
+
+    (Keyed by identity, not by value: hashing a regional frame's WKB costs seconds.
+    The cache holds the geometry, so an id is never reused while its entry lives.)
+    """
+
+    def __init__(self, size: int = 32):
+        self._size = size
+        self._entries: dict[int, tuple[Any, _Region]] = {}
+
+    def get(self, geom: Any) -> _Region:
+        hit = self._entries.get(id(geom))
+        if hit is not None and hit[0] is geom:
+            return hit[1]
+        region = _Region(geom)
+        if len(self._entries) >= self._size:
+            self._entries.pop(next(iter(self._entries)))
+        self._entries[id(geom)] = (geom, region)
+        return region
+
+    def cache_clear(self) -> None:
+        self._entries.clear()
+
+
+_region_cached = _RegionCache()
 
 
 def _region(geom: Any) -> _Region:
@@ -473,7 +496,7 @@ def _region(geom: Any) -> _Region:
     if isinstance(geom, _Region):
         return geom
     if shapely.get_num_coordinates(geom) > 2000:
-        return _region_cached(shapely.to_wkb(geom))
+        return _region_cached.get(geom)
     return _Region(geom)
 
 
