@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable
 
-from .errors import SettingError
+from .errors import GeosampleError, SettingError
 from .model import Design, Frame
 from .plan import GENERATED_STRATA, Plan
 from .rng import fresh_seed, seed_from_text
@@ -22,6 +22,8 @@ __all__ = ["make_design", "resolve_seed", "build_frame_from_plan", "allocation_f
 log = logging.getLogger(__name__)
 
 Progress = Callable[[str], None]
+
+_ABSENT = object()
 
 
 @dataclass(frozen=True)
@@ -140,21 +142,25 @@ def _check_water_body_minimum(size: dict, k: int) -> None:
             f"water bodies with a strata layer, or set size.n to at least {need}.")
 
 
-def allocation_from_plan(plan: Plan, frame: Frame):
-    """Size and allocate the primary samples over the frame's strata."""
+def allocation_from_plan(plan: Plan, frame: Frame, *, n: int | None = None):
+    """Size and allocate the primary samples over the frame's strata (``n``: a total that overrides the plan's)."""
     from .stats.sizing import allocate
 
     size = plan.settings["size"]
     names = [s.name for s in frame.strata]
     if plan.settings["area"].get("strata") == "water-bodies":
         _check_water_body_minimum(size, len(names))
+    sd = _per_stratum(size, names, "sd")
+    if sd is None and size.get("sd_between_days") is not None:
+        # the sd of one visit from the stated components (for the split over strata; the days are sized apart)
+        sd = [(size["sd_between_days"] ** 2 + size["sd_within_day"] ** 2) ** 0.5] * len(names)
     return allocate(
         [s.weight for s in frame.strata],
         strata=names,
-        n=size.get("n"),
+        n=n if n is not None else size.get("n"),
         tolerance=size.get("tolerance"),
         method=size["allocation"],
-        sd=_per_stratum(size, names, "sd"),
+        sd=sd,
         range=_per_stratum(size, names, "range"),
         cost=_per_stratum(size, names, "cost"),
         min_per_stratum=size["min_per_stratum"],
@@ -164,7 +170,70 @@ def allocation_from_plan(plan: Plan, frame: Frame):
     )
 
 
-def _sizing_summary(plan: Plan, frame: Frame, allocation) -> dict:
+#: Plan keys named in messages when the plan sizes field days (stats.twostage.plan_days).
+DAY_NAMES = {"tolerance": "size.tolerance", "range": "size.range", "lower": "size.lower", "sd": "size.sd",
+             "sd_between": "size.sd_between_days", "sd_within": "size.sd_within_day", "per_day": "time.per_day",
+             "days": "time.field_days", "cost_day": "size.cost_day", "cost_visit": "size.cost_visit",
+             "confidence": "size.confidence", "bound": "size.bound", "sides": "size.sides",
+             "max_per_day": "time.per_day", "max_days": "time.field_days", "n": "time.field_days"}
+
+
+def _largest(size: dict, key: str) -> float | None:
+    """The plan's ``size.KEY``, else the largest per-stratum value (a day mixes strata: the widest one bounds it)."""
+    if size.get(key) is not None:
+        return float(size[key])
+    vals = [t.get(key) for t in (size.get("strata") or {}).values() if isinstance(t, dict) and t.get(key)]
+    return float(max(vals)) if vals else None
+
+
+def days_plan_from_plan(plan: Plan, *, days: int | None = None, per_day: int | None = None, tolerance=_ABSENT):
+    """The plan's sizing in field days and visits per day (:func:`geosample.stats.twostage.plan_days`).
+
+    The range of a day's contribution is ``size.range`` (or the widest stratum range);
+    the stated spread is ``size.sd_between_days`` and ``size.sd_within_day`` (or
+    ``size.sd``, taken as the sd of a whole day); ``time.per_day`` caps the visits per day.
+    """
+    from .stats.twostage import plan_days
+
+    size = plan.settings["size"]
+    t = plan.settings["time"]
+    return plan_days(
+        size.get("tolerance") if tolerance is _ABSENT else tolerance,
+        range=_largest(size, "range"), lower=size.get("lower"), sd=_largest(size, "sd"),
+        sd_between=size.get("sd_between_days"), sd_within=size.get("sd_within_day"),
+        cost_day=size.get("cost_day"), cost_visit=size.get("cost_visit"),
+        per_day=per_day, days=days, max_per_day=None if per_day is not None else t["per_day"],
+        confidence=size["confidence"], bound=size["bound"], sides=size["sides"], names=DAY_NAMES)
+
+
+def _day_promise(plan: Plan, schedule) -> dict:
+    """What the design as drawn promises: the bound on the field days that carry primary visits."""
+    from collections import Counter
+
+    per = Counter(v.visit_date for v in schedule.visits if v.role == "primary" and v.visit_date is not None)
+    k, m_min = len(per), min(per.values(), default=0)
+    out = {"days": k, "visits": sum(per.values()), "per_day_min": m_min, "per_day_max": max(per.values(), default=0)}
+    size = plan.settings["size"]
+    if k < 2:
+        out.update(sentence=f"{k} field day{'s' if k != 1 else ''} with primary visits: no guarantee rests on fewer "
+                            "than 2 days.", half_width=None, error_bound=1.0, basis="range", assumption="", notes=[])
+        return out
+    try:
+        p = days_plan_from_plan(plan, days=k, per_day=m_min)
+    except GeosampleError as e:  # e.g. a fixed total with a bound that needs what the plan does not give
+        out.update(sentence=f"No promise on the {k} field days: {e}", half_width=None, error_bound=1.0,
+                   basis="range", assumption="", notes=[])
+        return out
+    from dataclasses import replace
+
+    p = replace(p, visits=out["visits"])
+    out.update(sentence=p.sentence(), half_width=p.half_width, error_bound=p.error_bound, basis=p.basis,
+               assumption=p.assumption, notes=list(p.notes), bound=p.bound, day_sd=p.day_sd,
+               reached=size.get("tolerance") is None or p.half_width <= size["tolerance"] * (1 + 1e-9))
+    return out
+
+
+def _sizing_summary(plan: Plan, frame: Frame, allocation, schedule=None, days_plan=None) -> dict:
     """What the report needs to explain the total (formula, inputs, guarantee)."""
     from .stats import sizing
 
@@ -196,9 +265,24 @@ def _sizing_summary(plan: Plan, frame: Frame, allocation) -> dict:
     else:
         guarantee = f"{allocation.total} primary samples; error probability at most {allocation.error_bound:.4f}."
     formula = sizing.FORMULAS.get(size["bound"], "")
+    days = _day_promise(plan, schedule) if schedule is not None else None
+    if days is not None:
+        independent = guarantee
+        guarantee = days["sentence"]
+        assumption = days["assumption"] or assumption
+        if days["days"] < days["visits"]:
+            days["independent"] = ("Counted as independent samples, the same visits would be said to give: "
+                                   + independent + " That count does not hold: visits on one field day share its "
+                                   "weather and time of day, so the field days are the units.")
+    if days_plan is not None and days is not None:
+        days["sized"] = {"days": days_plan.days, "per_day": days_plan.per_day, "visits": days_plan.visits,
+                         "per_day_optimum": days_plan.per_day_optimum, "cost": days_plan.cost,
+                         "notes": list(days_plan.notes)}
     return {
+        "days": days,
         "formula": formula,
-        "inputs": {k: size.get(k) for k in ("tolerance", "range", "sd", "confidence", "bound", "sides",
+        "inputs": {k: size.get(k) for k in ("tolerance", "range", "lower", "sd", "sd_between_days", "sd_within_day",
+                                            "cost_day", "cost_visit", "confidence", "bound", "sides",
                                             "allocation", "min_per_stratum", "n")},
         "per_stratum": per,
         "guarantee": guarantee,
@@ -273,11 +357,6 @@ def make_design(
     frame = build_frame_from_plan(plan, layers, progress=progress)
     step("sizing and allocating")
     allocation = allocation_from_plan(plan, frame)
-    step("drawing sites")
-    d = settings["draw"]
-    draw = draw_sites(frame, allocation, method=d["method"], reserve=d["reserve"], spacing_m=d.get("spacing_m"),
-                      seed=seed)
-    step("drawing field days and times")
     t = settings["time"]
     lon, lat = _frame_lonlat(frame)
     days = field_days(t["start"], t["end"], weekdays=t["days"], skip=t["skip"], window=t["window"],
@@ -285,15 +364,32 @@ def make_design(
                       min_minutes=t["minutes_on_site"])
     day_tuple = getattr(days, "days", days)
     day_warnings = tuple(getattr(days, "warnings", ()))
+    crew_days, days_plan = t.get("field_days"), None
+    if not crew_days and settings["size"].get("tolerance") is not None:
+        # the field days are the units: k days of m visits (stats.twostage), within the season's allowed days
+        days_plan = days_plan_from_plan(plan)
+        total = allocation.total  # a fixed size.n stays fixed: the report states what its days give
+        if settings["size"].get("n") is None and days_plan.visits > total:
+            total = days_plan.visits
+            allocation = allocation_from_plan(plan, frame, n=total)
+        crew_days = min(len(day_tuple), total, max(days_plan.days, -(-total // t["per_day"]))) or None
+        if days_plan.days > len(day_tuple):
+            day_warnings += (f"the {settings['size']['bound']} bound needs {days_plan.days} field days, but the season "
+                             f"allows only {len(day_tuple)}: the report states what {len(day_tuple)} days give",)
+    step("drawing sites")
+    d = settings["draw"]
+    draw = draw_sites(frame, allocation, method=d["method"], reserve=d["reserve"], spacing_m=d.get("spacing_m"),
+                      seed=seed)
+    step("drawing field days and times")
     schedule = schedule_visits(draw, day_tuple, per_day=t["per_day"], seed=seed,
-                               minutes_on_site=t["minutes_on_site"], field_days=t.get("field_days"))
+                               minutes_on_site=t["minutes_on_site"], field_days=crew_days)
     step("planning day routes")
     schedule = build_itinerary(schedule, frame, speed_kmh=t["speed_kmh"], minutes_on_site=t["minutes_on_site"],
                                holding_h=t["holding_h"], lab_minutes=t["lab_minutes"], seed=seed)
     from dataclasses import replace
 
     schedule = replace(schedule, warnings=tuple(schedule.warnings) + day_warnings)
-    sizing = _sizing_summary(plan, frame, allocation)
+    sizing = _sizing_summary(plan, frame, allocation, schedule, days_plan)
     return Design(
         settings=settings,
         frame=frame,

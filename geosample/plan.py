@@ -188,7 +188,24 @@ SCHEMA: dict[str, dict[str, Key]] = {
                          help="Half-width D of the interval, in the units of the results."),
         "range": Key(_positive, "a positive number", None,
                      help="L: the largest possible difference between two measurements."),
-        "sd": Key(_positive, "a positive number", None, help="A standard deviation known from a pilot (optional)."),
+        "sd": Key(_positive, "a positive number", None, help="A standard deviation known from a pilot (optional). "
+                  "Without the two sds below it is taken as the sd of a whole field day's contribution (all variation "
+                  "between days, the worst case); the chebyshev, cantelli and hoeffding bounds do not use it in a "
+                  "plan (their promise rests on the range alone, as the assessment does)."),
+        "lower": Key(_is_number, "a number", None,
+                     help="The smallest possible value: results run from lower to lower + range (0 when absent; "
+                          "log10 units for geomean). The betting interval uses it."),
+        "sd_between_days": Key(_nonneg, "a number >= 0", None,
+                               help="S_b: sd of the field-day means (the between-day variance component), from a "
+                                    "pilot or an earlier season; with sd_within_day it sizes field days and visits "
+                                    "per day (an assumption the report names)."),
+        "sd_within_day": Key(_nonneg, "a number >= 0", None,
+                             help="S_w: sd of visits around their day's mean (the within-day component)."),
+        "cost_day": Key(_positive, "a positive number", None,
+                        help="Cost of one field day (travel, boat, crew), any unit; with cost_visit it chooses the "
+                             "visits per day, (S_w / S_b) sqrt(cost_day / cost_visit)."),
+        "cost_visit": Key(_positive, "a positive number", None,
+                          help="Cost of one more visit on a day (sample, analysis), in the unit of cost_day."),
         "confidence": Key(_prob, "a number strictly between 0 and 1, e.g. 0.95", 0.95, help="Confidence level."),
         "bound": Key(_choice(BOUNDS), " | ".join(BOUNDS), "chebyshev", help="The bound the sample size comes from."),
         "sides": Key(_choice(("two", "one")), '"two" or "one"', "two", help="Two-sided interval or one-sided bound."),
@@ -425,10 +442,19 @@ def _cross_check(s: dict, source: str, warnings: list[str]) -> None:
         if size["range"] is None and not all_ranges:
             raise SettingError("size.range", None, f"a positive number: the {size['bound']} bound needs the range L",
                                fix="add range = L, the largest possible difference between two measurements")
+    for a_key, b_key, what in (("sd_between_days", "sd_within_day", "sds"), ("cost_day", "cost_visit", "costs")):
+        if (size[a_key] is None) != (size[b_key] is None):
+            missing = b_key if size[b_key] is None else a_key
+            raise SettingError(f"size.{missing}", None, f"a number: the between-day and within-day {what} go "
+                               "together" if what == "sds" else "a positive number: the day and visit costs go "
+                               "together", fix=f"add size.{missing}, or remove size.{a_key if missing == b_key else b_key}")
+    if size["sd_between_days"] == 0 and size["sd_within_day"] == 0:
+        raise SettingError("size.sd_between_days", 0, "sds that are not both 0",
+                           fix="give the sds observed in a pilot or an earlier season")
     if size["bound"] in ("t", "bernstein"):
         per = size["strata"]
         all_sd = bool(per) and all(isinstance(v, dict) and v.get("sd") for v in per.values())
-        if size["sd"] is None and not all_sd:
+        if size["sd"] is None and not all_sd and size["sd_between_days"] is None:
             raise SettingError("size.sd", None, f"a positive number: the {size['bound']} bound needs a pilot sd",
                                fix="add sd = S from a pilot study or an earlier season")
     if size["bound"] == "cantelli" and size["sides"] == "two":

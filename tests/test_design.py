@@ -117,3 +117,70 @@ def test_field_days_too_few_for_the_visits_is_refused_with_figures(demo_plan, tm
     assert main(["plan", str(demo_plan), "-o", str(tmp_path / "d")]) == 2
     err = capsys.readouterr().err
     assert "field_days = 3" in err and "24 visits" in err
+
+
+# --------------------------------------------------------------------------- field days as the units
+def _design(plan_path):
+    from geosample.design import make_design
+    from geosample.plan import load_plan
+
+    return make_design(load_plan(plan_path))
+
+
+def _primary_days(design):
+    from collections import Counter
+
+    return Counter(v.visit_date for v in design.schedule.visits if v.role == "primary")
+
+
+def test_without_a_crew_day_budget_the_plan_draws_the_days_the_bound_needs(demo_plan):
+    # CHECKS.md "Two-stage designs": a range-only bound counts days. Chebyshev, L = 80, d = 16, a = 0.10:
+    # (80/2)^2 / (0.10 x 16^2) = 62.5 -> 63 field days (computed), one visit each
+    _edit(demo_plan, "field_days = 16", "")
+    d = _design(demo_plan)
+    days = _primary_days(d)
+    assert len(days) == 63 and set(days.values()) == {1}
+    promise = d.sizing["days"]
+    assert promise["days"] == 63 and promise["error_bound"] <= 0.10 and promise["reached"]
+    assert "range alone" in promise["sentence"]
+
+
+def test_a_crew_day_budget_is_kept_and_the_report_states_what_its_days_give(demo_plan):
+    # the demo: 63 visits on a budget of 16 crew days; Chebyshev on 16 days: 40^2 / (16 x 16^2) = 0.39
+    # (CHECKS.md "Two-stage designs"), not the 0.099 of 63 independent visits
+    d = _design(demo_plan)
+    assert len(_primary_days(d)) == 16
+    promise = d.sizing["days"]
+    assert abs(promise["error_bound"] - 40**2 / (16 * 16**2)) < 1e-12 and not promise["reached"]
+    assert "That count does not hold" in promise["independent"]
+
+
+def test_stated_components_and_costs_choose_days_and_visits_per_day(demo_plan):
+    # Brus 2022 ch. 7 (CHECKS.md): m = (S_w / S_b) sqrt(c_day / c_visit) = (15 / 6) sqrt(200 / 20) = 7.9
+    _edit(demo_plan, "field_days = 16", "")
+    _edit(demo_plan, 'bound = "chebyshev"', 'bound = "t"\nsd_between_days = 6\nsd_within_day = 15\n'
+                                            "cost_day = 200\ncost_visit = 20")
+    _edit(demo_plan, "tolerance = 16", "tolerance = 5")
+    d = _design(demo_plan)
+    sized = d.sizing["days"]["sized"]
+    assert sized["per_day"] in (7, 8) and abs(sized["per_day_optimum"] - 15 / 6 * 10**0.5) < 1e-12
+    days = _primary_days(d)
+    assert len(days) == sized["days"] and set(days.values()) == {sized["per_day"]}
+    assert d.sizing["days"]["basis"] == "components" and "assumption" in d.sizing["days"]["sentence"]
+
+
+def test_a_stated_sd_does_not_narrow_a_chebyshev_promise(demo_plan):
+    # assess uses range/2 for Chebyshev (stats.intervals.chebyshev_half_width), so the plan promises the same
+    from geosample.stats.intervals import chebyshev_half_width
+
+    _edit(demo_plan, "range = 80", "range = 80\nsd = 20")
+    d = _design(demo_plan)
+    k = d.sizing["days"]["days"]
+    assert abs(d.sizing["days"]["half_width"] - chebyshev_half_width([1.0], [k], [80], 0.90)) < 1e-9
+
+
+def test_size_lower_is_a_plan_key(demo_plan):
+    from geosample.plan import load_plan
+
+    _edit(demo_plan, "range = 80", "range = 80\nlower = 0")
+    assert load_plan(demo_plan).settings["size"]["lower"] == 0

@@ -258,3 +258,23 @@ def test_docs_cli_reference_names_every_command_and_option():
             for opt in getattr(param, "opts", []):
                 if opt.startswith("-"):
                     assert opt in doc, f"{name} {opt}: regenerate docs/cli.md"
+
+
+@pytest.mark.parametrize("extra, setting", [
+    ("sd_between_days = 4", "size.sd_within_day"),
+    ("sd_within_day = 4", "size.sd_between_days"),
+    ("cost_day = 100", "size.cost_visit"),
+    ("sd_between_days = 0\nsd_within_day = 0", "size.sd_between_days"),
+    ("lower = \"zero\"", "size.lower"),
+])
+def test_field_day_keys_go_together_and_name_the_missing_one(extra, setting):
+    with pytest.raises(SettingError, match=setting.replace(".", r"\.")):
+        load(MINIMAL.replace("range = 80", "range = 80\n" + extra))
+
+
+def test_field_day_keys_are_accepted_and_t_needs_no_sd_with_them():
+    p = load(MINIMAL.replace("range = 80", 'range = 80\nlower = -5\nbound = "t"\nsd_between_days = 3\n'
+                                           "sd_within_day = 9\ncost_day = 120\ncost_visit = 15"))
+    size = p.settings["size"]
+    assert (size["lower"], size["sd_between_days"], size["sd_within_day"]) == (-5, 3, 9)
+    assert (size["cost_day"], size["cost_visit"]) == (120, 15)

@@ -221,15 +221,28 @@ def _sizing(design: Design) -> dict:
     a = design.allocation
     sz = design.sizing or {}
     inputs = [(k, _num(v)) for k, v in (sz.get("inputs") or {}).items() if v is not None]
-    return {
+    out = {
         "bound": a.bound, "sides": "two-sided" if a.sides == "two" else "one-sided",
         "confidence": _conf_pct(a.confidence), "tolerance": _num(a.tolerance),
         "achieved_tolerance": _num(a.achieved_tolerance), "error_bound": _num(a.error_bound, 4),
         "total": a.total, "method": a.method, "formula": sz.get("formula") or "",
         "inputs": inputs, "guarantee": sz.get("guarantee") or "", "assumption": sz.get("assumption") or "",
-        "notes": list(a.notes),
+        "notes": list(a.notes) + list((sz.get("days") or {}).get("notes") or [])
+        + list(((sz.get("days") or {}).get("sized") or {}).get("notes") or []),
         "tolerance_factor": _num(sz.get("tolerance_factor")) if sz.get("tolerance_factor") else "",
+        "days": _days_promise(sz.get("days")),
     }
+    if out["days"] is not None:  # the promise on the field days replaces the count of visits as independent
+        hw = sz["days"].get("half_width")
+        out["achieved_tolerance"] = _num(hw) if hw is not None else ""
+        out["error_bound"] = _num(sz["days"].get("error_bound"), 4)
+    return out
+
+
+def _days_promise(days: dict | None) -> dict | None:
+    if not days:
+        return None
+    return {"sized": None, "independent": None, **days}
 
 
 def _allocation_rows(design: Design) -> list[dict]:

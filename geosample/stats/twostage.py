@@ -31,7 +31,7 @@ t            the stated day sd (approximate, df = k - 1)         ``t_{q, k-1} sd
 bernstein    range and stated day sd: empirical Bernstein,       ``sqrt(2 sd^2 u / k) + 7 L u / (3 (k - 1))``,
              at most ±d whenever the observed sd is at most it   ``u = ln(2 / delta)``
 betting      range and stated day sd (else L/2): the betting     by simulation (at most ±d in at
-             interval, simulated                                 least 90% of simulated seasons)
+             interval, simulated (three-point law, that sd)      least 90% of simulated seasons)
 ===========  ==================================================  ===================================
 
 The coverage of every interval holds whatever the spread (it is a theorem on the
@@ -135,8 +135,11 @@ class DaysPlan:
 
     def sentence(self) -> str:
         """The promise in plain words (a statement about the sampling procedure)."""
-        head = (f"{self.days} field days x {self.per_day} visit{'s' if self.per_day != 1 else ''} a day "
-                f"= {self.visits} visits: ")
+        if self.visits == self.days * self.per_day:
+            head = (f"{self.days} field days x {self.per_day} visit{'s' if self.per_day != 1 else ''} a day "
+                    f"= {self.visits} visits: ")
+        else:
+            head = f"{self.visits} visits on {self.days} field days (at least {self.per_day} a day): "
         pm = f"±{_num(self.half_width)}" if self.sides == "two" else f"{_num(self.half_width)} on the side that matters"
         conf = _pct(self.confidence)
         if self.bound in RANGE_ONLY:
@@ -209,8 +212,12 @@ def betting_half_width(k: int, spread: float, confidence: float, *, sides: str =
                        seed: int = 20271) -> float:
     """The ``quantile`` of the betting interval's half-width over simulated seasons of ``k`` days, on [0, 1].
 
-    The day contributions are simulated as ``1/2 ± spread`` with equal chance (sd ``spread``;
-    ``spread = 1/2`` is the widest case the range allows, a day at either end). The interval
+    The day contributions are simulated on [0, 1] from the three-point law with mass
+    ``2 spread^2`` at each end and the rest at 1/2: sd ``spread``, and of the symmetric laws
+    with that sd the one whose sample sd varies most (the widest interval quantiles; a two-point
+    law ``1/2 ± spread`` gives nearly the same width every season and promised too little on
+    real two-stage data). ``spread = 1/2`` is Bernoulli(1/2), the widest case the range allows.
+    The interval
     is :func:`geosample.stats.betting.betting_bounds` (the one ``assess`` uses) at error
     ``(1 - confidence) / strata``; one-sided: the distance from the mean to the bound that
     matters. A fixed seed makes the size reproducible.
@@ -223,7 +230,8 @@ def betting_half_width(k: int, spread: float, confidence: float, *, sides: str =
     for r in range(replicates):
         # replicate r's seasons for different k share their first days (common random numbers across k)
         u = np.random.default_rng([seed, r]).random(k)
-        x = 0.5 + s * np.where(u < 0.5, -1.0, 1.0)
+        p = 2.0 * s * s
+        x = np.where(u < p, 0.0, np.where(u < 2.0 * p, 1.0, 0.5))
         lo, hi = betting_bounds(x, alpha=a, sides=sides, direction="below")
         widths[r] = (hi - lo) / 2.0 if sides == "two" else hi - float(x.mean())
     return float(np.quantile(widths, quantile))
@@ -309,15 +317,15 @@ CLI_NAMES.update(sd_between="--sd-between-days", sd_within="--sd-within-day", n=
 def _assumption(bound: str, basis: str) -> str:
     if bound in RANGE_ONLY:
         return ("the field days are drawn at random and every result lies in the declared range; the guarantee "
-                "counts days, not visits, because the worst case puts all variation between days")
+                "counts days, not visits, because the worst case puts all variation between days.")
     what = {"components": "the stated between-day and within-day sds (an assumption, from a pilot or an earlier "
                           "season, not checked by this design)",
             "sd": "the stated sd, taken as the sd of a whole day's contribution (an assumption)",
             "range": "the range alone (the widest spread it allows)"}[basis]
     if bound == "t":
-        return f"the mean of the day contributions is approximately normal and its sd is as from {what}"
+        return f"the mean of the day contributions is approximately normal and its sd is as from {what}."
     return (f"coverage rests on the range alone (days drawn at random, every result in the declared range); "
-            f"the width rests on {what}")
+            f"the width rests on {what}.")
 
 
 def plan_days(tolerance: float | None = None, *, range: float | None = None, lower: float | None = None,
