@@ -368,6 +368,13 @@ def make_design(
     if not crew_days and settings["size"].get("tolerance") is not None:
         # the field days are the units: k days of m visits (stats.twostage), within the season's allowed days
         days_plan = days_plan_from_plan(plan)
+        n_temporal = len({getattr(day, "temporal_stratum", None) for day in day_tuple})
+        if days_plan.days < n_temporal <= len(day_tuple):
+            # every temporal stratum needs a field day: with those more days, fewer visits a day may do
+            for m in range(1, t["per_day"] + 1):
+                days_plan = days_plan_from_plan(plan, days=n_temporal, per_day=m)
+                if days_plan.half_width <= settings["size"]["tolerance"] * (1 + 1e-9):
+                    break
         total = allocation.total  # a fixed size.n stays fixed: the report states what its days give
         if settings["size"].get("n") is None and days_plan.visits > total:
             total = days_plan.visits

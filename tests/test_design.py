@@ -161,6 +161,7 @@ def test_stated_components_and_costs_choose_days_and_visits_per_day(demo_plan):
     _edit(demo_plan, 'bound = "chebyshev"', 'bound = "t"\nsd_between_days = 6\nsd_within_day = 15\n'
                                             "cost_day = 200\ncost_visit = 20")
     _edit(demo_plan, "tolerance = 16", "tolerance = 5")
+    _edit(demo_plan, "per_day = 8", 'per_day = 8\ntemporal = "season"')  # one temporal stratum: the Brus case
     d = _design(demo_plan)
     sized = d.sizing["days"]["sized"]
     assert sized["per_day"] in (7, 8) and abs(sized["per_day_optimum"] - 15 / 6 * 10**0.5) < 1e-12
@@ -184,3 +185,22 @@ def test_size_lower_is_a_plan_key(demo_plan):
 
     _edit(demo_plan, "range = 80", "range = 80\nlower = 0")
     assert load_plan(demo_plan).settings["size"]["lower"] == 0
+
+
+def test_every_temporal_stratum_gets_a_field_day_and_fewer_visits_a_day_then_do(demo_plan):
+    # weekly temporal strata (14 in the season) need 14 field days; with them, the t bound on the stated
+    # components needs fewer visits a day than the cost optimum: the smallest m whose promise holds
+    from scipy import stats
+
+    _edit(demo_plan, "field_days = 16", "")
+    _edit(demo_plan, 'bound = "chebyshev"', 'bound = "t"\nsd_between_days = 6\nsd_within_day = 15\n'
+                                            "cost_day = 200\ncost_visit = 20")
+    _edit(demo_plan, "tolerance = 16", "tolerance = 5")
+    d = _design(demo_plan)
+    m = d.sizing["days"]["sized"]["per_day"]
+    assert len(_primary_days(d)) == 14
+
+    def hw(m):  # computed with scipy: t_{0.95, 13} sqrt(6^2 + 15^2 / m) / sqrt(14), confidence 0.90
+        return stats.t.ppf(0.95, 13) * (36 + 225 / m) ** 0.5 / 14**0.5
+
+    assert hw(m) <= 5 < hw(m - 1)
