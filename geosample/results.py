@@ -33,7 +33,9 @@ What is read
 Checks
 ------
 - Primary sites without a result are replaced by the reserves of the same
-  stratum in ``reserve_rank`` order. A reserve used while a lower-ranked reserve
+  stratum in ``reserve_rank`` order. The crew records each replacement on the
+  primary's row (``replaced_by``: the reserve's site id; ``replacement_reason``);
+  :mod:`geosample.replacements` lists every substitution with its reason. A reserve used while a lower-ranked reserve
   was neither used nor attempted is flagged (out of order); reserves sampled
   beyond the number of missing primaries are flagged and left out of the estimate.
 - Site ids not in the design and duplicated site ids: with ``strict=True``
@@ -61,6 +63,7 @@ from typing import Any, Iterable, Sequence
 import numpy as np
 
 from .errors import InputFileError, ResultsError
+from .replacements import Substitution, substitutions
 
 __all__ = [
     "TIME_TOLERANCE_H",
@@ -175,6 +178,9 @@ class Results:
         Strata whose results differ by more than the declared range (voids every range bound).
     outside_support : tuple of str
         Strata with results outside ``[lower, lower + range]`` (voids the betting bound).
+    substitutions : tuple of Substitution
+        Every primary without a result, with the reserve that replaced it (recorded by the crew in
+        ``replaced_by``, or inferred in rank order) and why (:mod:`geosample.replacements`).
     """
 
     path: str
@@ -188,6 +194,7 @@ class Results:
     notes: tuple[str, ...]
     range_exceeded: tuple[str, ...] = ()
     outside_support: tuple[str, ...] = ()
+    substitutions: tuple[Substitution, ...] = ()
 
     def values(self, stratum: str) -> np.ndarray:
         for s in self.strata:
@@ -600,6 +607,8 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
     by_site = {r.site_id: r for r in records if r.status not in ("unknown_site", "duplicate")}
     used_rows, sflags, strata = _replacement(manifest, schedule_rows, by_site)
     flags += sflags
+    subs, subflags = substitutions(records, schedule_rows, strata, Flag)
+    flags += subflags
     records = [r if r.row not in used_rows else _with_used(r) for r in records]
     usable = [r for r in records if r.used]
     if not usable:
@@ -620,7 +629,7 @@ def read_results(path: str | Path, manifest: dict | str | Path, schedule_rows: S
     return Results(
         path=str(path), encoding=encoding, delimiter=delim, columns=tuple(header), records=tuple(records),
         strata=strata_res, order=order, flags=tuple(flags), notes=tuple(notes), range_exceeded=rng_ex,
-        outside_support=outside,
+        outside_support=outside, substitutions=subs,
     )
 
 

@@ -204,6 +204,9 @@ def test_every_day_track_segment_lies_on_the_demo_lakes_water(demo):
     for r in g.routes:
         xy = [to_xy.transform(q.longitude, q.latitude) for q in r.points]
         assert tolerant.contains(LineString(xy)), r.name
+    # sites.gpkg's routes layer (frame CRS) too
+    routes = pyogrio.read_dataframe(demo / "sites.gpkg", layer="routes")
+    assert len(routes) == 16 and all(tolerant.contains(g) for g in routes.geometry)
     # the check can fail: straight lines between the stops cross an island on some day
     crossing = 0
     for r in g.routes:

@@ -35,7 +35,8 @@ from geosample.export.table import neutralise_formula, schedule_rows, write_sche
 
 # The pinned schedule.csv columns, copied from DEVELOPERS.md ("schedule.csv and manifest.json").
 PINNED = ["site_id", "stratum", "role", "reserve_rank", "visit_date", "planned_time", "day", "day_inclusion_p",
-          "route_order", "lat", "lon", "x", "y", "result", "qualifier", "sampled_at", "sampler", "notes"]
+          "route_order", "lat", "lon", "x", "y", "result", "qualifier", "sampled_at", "sampler", "notes",
+          "replaced_by", "replacement_reason"]
 XSS = "<script>alert(1)</script>"
 ALL_IDS = [s[0] for s in SITES]
 PRIMARY_IDS = [s[0] for s in SITES if s[2] == "primary"]

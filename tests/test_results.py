@@ -19,7 +19,8 @@ from geosample.errors import ResultsError
 from geosample.results import TIME_TOLERANCE_H, decode_text, detect_delimiter, parse_result, read_results
 
 SCHEDULE_COLUMNS = ["site_id", "stratum", "role", "reserve_rank", "visit_date", "planned_time", "day",
-                    "day_inclusion_p", "route_order", "lat", "lon", "x", "y", "result", "qualifier", "sampled_at", "sampler", "notes"]
+                    "day_inclusion_p", "route_order", "lat", "lon", "x", "y", "result", "qualifier", "sampled_at", "sampler", "notes",
+                    "replaced_by", "replacement_reason"]
 
 PLAN_TOML = """
 [survey]

@@ -12,7 +12,7 @@ import pytest
 from geosample.cli import main
 from geosample.workflow import copy_demo, draw_record_path
 
-PACKAGE = ("schedule.csv", "sites.gpx", "sites.geojson", "map.html", "report.html", "manifest.json")
+PACKAGE = ("schedule.csv", "sites.gpx", "sites.geojson", "sites.gpkg", "map.html", "report.html", "manifest.json")
 
 
 @pytest.fixture(scope="module")
@@ -45,7 +45,8 @@ def test_plan_writes_the_whole_field_package(design):
 def test_schedule_has_the_contract_columns(design):
     rows = _read_schedule(design)
     need = ["site_id", "stratum", "role", "reserve_rank", "visit_date", "planned_time", "lat", "lon", "x", "y",
-            "result", "qualifier", "sampled_at", "sampler", "notes"]
+            "result", "qualifier", "sampled_at", "sampler", "notes",
+          "replaced_by", "replacement_reason"]
     assert set(need) <= set(rows[0])
     roles = {r["role"] for r in rows}
     assert roles == {"primary", "reserve"}

@@ -115,6 +115,14 @@ def summary_text(a) -> str:
         r = a.next_allocation
         lines += ["", f"Next round ({r.method}, {r.bound} bound): " + ", ".join(
             f"{s} {n}" for s, n in zip(r.strata, r.n)) + f" (total {r.total})"]
+    subs = d.get("substitutions") or []
+    if subs:
+        lines += ["", f"Substitutions ({len(subs)}):"]
+        for s in subs:
+            what = (f"replaced by {s['reserve']} (rank {s['reserve_rank']}, "
+                    f"{'recorded' if s['recorded'] else 'inferred in rank order'}"
+                    f"{'' if s['in_order'] else ', OUT OF RANK ORDER'})" if s["reserve"] else "no reserve sampled")
+            lines.append(f"  - {s['stratum']}: {s['primary']} {what}; reason: {s['reason'] or 'not given'}")
     if a.flags:
         lines += ["", f"Flags ({len(a.flags)}):"]
         for f in a.flags:

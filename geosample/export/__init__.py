@@ -4,7 +4,9 @@
 
 - ``schedule.csv`` (:mod:`.table`): one row per site, with columns for the crew's results;
 - ``sites.geojson`` (:mod:`.geo`): RFC 7946 points with the schedule's attributes;
-- ``sites.gpx`` (:mod:`.gpx`): GPX 1.1 waypoints and one route per crew trip;
+- ``sites.gpx`` (:mod:`.gpx`): GPX 1.1 waypoints and one route and track per crew trip, over water;
+- ``sites.gpkg`` (:mod:`.gpkg`): a GeoPackage for desktop GIS (sites, routes, frame, strata,
+  exclusions, access), written with a fixed GDAL date so its bytes do not follow the clock;
 - ``map.html`` (:mod:`.map`): a self-contained map that works with no network;
 - ``report.html`` (:mod:`.report`): why this many samples, how they were drawn, what a
   result may claim, and field cautions;
@@ -30,7 +32,7 @@ if TYPE_CHECKING:  # pragma: no cover
 __all__ = ["PACKAGE_FILES", "write_package", "template_environment"]
 
 #: The files :func:`write_package` writes, in the order written.
-PACKAGE_FILES = ("schedule.csv", "sites.geojson", "sites.gpx", "map.html", "report.html")
+PACKAGE_FILES = ("schedule.csv", "sites.geojson", "sites.gpx", "sites.gpkg", "map.html", "report.html")
 
 
 @functools.lru_cache(maxsize=1)
@@ -66,6 +68,7 @@ def write_package(design: "Design", folder: str | Path) -> dict[str, Path]:
     """
     from .days import write_days
     from .geo import write_geojson
+    from .gpkg import write_gpkg
     from .gpx import write_gpx
     from .map import write_map
     from .report import write_report
@@ -77,6 +80,7 @@ def write_package(design: "Design", folder: str | Path) -> dict[str, Path]:
         "schedule.csv": write_schedule,
         "sites.geojson": write_geojson,
         "sites.gpx": write_gpx,
+        "sites.gpkg": write_gpkg,
         "map.html": write_map,
         "report.html": write_report,
     }

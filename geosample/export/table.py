@@ -6,7 +6,7 @@ The columns are pinned (``DEVELOPERS.md``)::
 
     site_id, stratum, role, reserve_rank, visit_date, planned_time, day,
     day_inclusion_p, route_order, lat, lon, x, y, result, qualifier, sampled_at,
-    sampler, notes
+    sampler, notes, replaced_by, replacement_reason
 
 - ``day`` is the 1-based number of the crew day: the rank of the visit's date
   among the dates that have visits (day 1 is the first day out). Reserves have
@@ -19,7 +19,11 @@ The columns are pinned (``DEVELOPERS.md``)::
   to the second (``2027-06-14T09:32:00-05:00``).
 - ``lat``/``lon`` are WGS 84 degrees with 6 decimals (about 0.1 m); ``x``/``y``
   are metres in the frame's CRS with 1 decimal.
-- ``result, qualifier, sampled_at, sampler, notes`` are empty, for the crew.
+- ``result, qualifier, sampled_at, sampler, notes`` are empty, for the crew;
+  ``replaced_by`` and ``replacement_reason`` too: when a primary cannot be
+  sampled, the crew writes on *its* row the site id of the reserve that replaced
+  it (the next unused reserve of its stratum, in rank order) and why
+  (:mod:`geosample.replacements` reads them).
 
 The file is UTF-8 without a byte-order mark, with ``"\\n"`` line endings and
 the :mod:`csv` module's minimal quoting, so identical designs give identical
@@ -56,8 +60,8 @@ __all__ = [
 
 FILE_NAME = "schedule.csv"
 
-#: The crew fills these in.
-CREW_COLUMNS = ("result", "qualifier", "sampled_at", "sampler", "notes")
+#: The crew fills these in (the last two on a primary's row when a reserve replaced it).
+CREW_COLUMNS = ("result", "qualifier", "sampled_at", "sampler", "notes", "replaced_by", "replacement_reason")
 
 #: Every column of ``schedule.csv``, in order.
 COLUMNS = (

@@ -116,6 +116,7 @@ class Assessment:
     flags: tuple[Any, ...] = ()
     notes: tuple[str, ...] = ()
     range_void: bool = False
+    substitutions: tuple[Any, ...] = ()  # results.Results.substitutions: which reserve replaced which primary, why
 
     @property
     def approximate(self) -> bool:
@@ -151,6 +152,7 @@ class Assessment:
             "next_allocation": None if self.next_allocation is None else self.next_allocation.as_dict(),
             "flags": [_flag_dict(f) for f in self.flags],
             "notes": list(self.notes), "range_void": self.range_void, "approximate": self.approximate,
+            "substitutions": [s.as_dict() if hasattr(s, "as_dict") else dict(s) for s in self.substitutions],
         }
 
 
@@ -680,4 +682,5 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm", schedule_rows:
         decision=decision, statement=text, decision_text=dtext, assumption=BOUND_ASSUMPTIONS[bound],
         strata=tuple(per), adjust=adjust, sequential=seq, next_allocation=realloc,
         flags=tuple(getattr(results, "flags", ())), notes=tuple(notes), range_void=range_void,
+        substitutions=tuple(getattr(results, "substitutions", ())),
     )
