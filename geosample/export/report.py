@@ -386,6 +386,46 @@ def _route_rows(design: Design) -> dict:
     }
 
 
+def _overview_map(design: Design) -> str:
+    """The whole frame with every trip's path over water, the primaries and the access points (inline SVG)."""
+    from .gpx import trips
+    from .svg import ROUTE_COLOURS, Line, Marker, padded_extent, svg_map
+
+    frame = design.frame
+    lines = [Line(tuple(t.route.coords_xy), ROUTE_COLOURS[(t.day - 1) % len(ROUTE_COLOURS)], 1.3)
+             for t in trips(design) if len(t.route.coords_xy) >= 2]
+    markers = [Marker(v.x, v.y, "dot", colour="#000000") for v in design.schedule.visits if v.role == "primary"]
+    markers += [Marker(a.x, a.y, "access", a.name) for a in frame.access]
+    geoms = [g for g in (frame.water, *(s.geometry for s in frame.strata)) if g is not None and not g.is_empty]
+    if not geoms:
+        return ""
+    extent = padded_extent(geoms, pad=0.03, aspect=760 / 460)
+    return svg_map(frame, extent, width=760, height=460, lines=lines, markers=markers,
+                   title="Overview: strata, closed areas, routes over water, primary sites and access points")
+
+
+def _site_list(design: Design) -> dict:
+    """Every site for the paper schedule: primaries by field day and stop, reserves by stratum and rank."""
+    from .table import reserve_label
+
+    codes = {s.name: s.code for s in design.frame.strata}
+    visits = ordered_visits(design)
+    days = day_numbers(visits)
+    by_day: dict[dt.date, list[dict]] = {}
+    for v in visits:
+        if v.role == "primary" and v.visit_date is not None:
+            by_day.setdefault(v.visit_date, []).append({
+                "order": "" if v.route_order is None else v.route_order, "site_id": v.site_id,
+                "stratum": v.stratum, "planned": _hhmm(v.planned_time), "lat": f"{v.lat:.6f}",
+                "lon": f"{v.lon:.6f}"})
+    reserves = [{"label": reserve_label(codes.get(v.stratum, ""), v.reserve_rank), "site_id": v.site_id,
+                 "stratum": v.stratum, "lat": f"{v.lat:.6f}", "lon": f"{v.lon:.6f}"}
+                for v in visits if v.role != "primary"]
+    return {"days": [{"day": days[d], "date": d.isoformat(), "weekday": d.strftime("%a"), "rows": rows}
+                     for d, rows in sorted(by_day.items())],
+            "reserves": reserves}
+
+
 def report_context(design: Design) -> dict:
     """Everything ``report.html`` shows, as plain data (strings, numbers, lists, dicts).
 
@@ -417,13 +457,19 @@ def report_context(design: Design) -> dict:
         "claims": claim_wording(design),
         "cautions": _cautions(design),
         "warnings": warnings,
-        "files": [f for f in PACKAGE_FILES if f != FILE_NAME] + ["manifest.json"],
+        "files": [f for f in PACKAGE_FILES if f != FILE_NAME] + ["days/", "manifest.json"],
+        "overview_svg": _overview_map(design),
+        "site_list": _site_list(design),
     }
 
 
 def render_report(design: Design) -> str:
     """``report.html`` as text (jinja2, autoescaped)."""
-    return template_environment().get_template("report.html.j2").render(**report_context(design))
+    from markupsafe import Markup
+
+    ctx = report_context(design)
+    ctx["overview_svg"] = Markup(ctx["overview_svg"])  # built by svg.svg_map, every label escaped there
+    return template_environment().get_template("report.html.j2").render(**ctx)
 
 
 def write_report(design: Design, path: str | Path) -> Path:
