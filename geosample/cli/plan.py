@@ -26,7 +26,8 @@ def plan_command(plan_file: Path, out: Path, overwrite: bool, bundle_inputs: boo
     """Build the sampling frame, size and allocate the effort, draw primary and
     reserve sites and the field days and times, plan the day routes, and write
     the field package into OUT: schedule.csv, sites.gpx, sites.geojson,
-    map.html, report.html and manifest.json.
+    sites.gpkg, map.html, report.html, days/ (per field day a GPX, a CSV and
+    a one-page printable sheet) and manifest.json.
 
     Each run is added to the plan's draw history, kept by the plan's content (not
     its file name): OUT/draws.csv, a per-user store and PLAN.toml.draws.csv
