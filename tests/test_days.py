@@ -8,9 +8,7 @@ pyogrio (GDAL's GPX driver) for the GPX files, the csv module for the CSV, pypro
 from __future__ import annotations
 
 import csv
-import dataclasses
 import datetime as dt
-import io
 import re
 
 import gpxpy

@@ -17,9 +17,9 @@ from dataclasses import dataclass, field
 from typing import Any, Sequence
 
 import shapely
-from shapely.geometry import LineString, MultiPolygon, Polygon, box
+from shapely.geometry import MultiPolygon, Polygon
 
-__all__ = ["Marker", "Line", "svg_map", "nice_length"]
+__all__ = ["Marker", "Line", "svg_map", "padded_extent", "nice_length"]
 
 STRATUM_COLOURS = ("#77AADD", "#EE8866", "#EEDD88", "#FFAABB", "#99DDFF", "#44BB99", "#BBCC33", "#AAAA00")
 ROUTE_COLOURS = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#000000")
