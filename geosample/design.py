@@ -186,12 +186,15 @@ def _largest(size: dict, key: str) -> float | None:
     return float(max(vals)) if vals else None
 
 
-def days_plan_from_plan(plan: Plan, *, days: int | None = None, per_day: int | None = None, tolerance=_ABSENT):
+def days_plan_from_plan(plan: Plan, *, days: int | None = None, per_day: int | None = None, tolerance=_ABSENT,
+                        strata: int = 1):
     """The plan's sizing in field days and visits per day (:func:`geosample.stats.twostage.plan_days`).
 
     The range of a day's contribution is ``size.range`` (or the widest stratum range);
     the stated spread is ``size.sd_between_days`` and ``size.sd_within_day`` (or
     ``size.sd``, taken as the sd of a whole day); ``time.per_day`` caps the visits per day.
+    ``strata`` is the number of spatial strata: ``assess`` runs the bernstein and betting
+    intervals in each stratum at error ``a / strata`` (a union bound), so the promise does too.
     """
     from .stats.twostage import plan_days
 
@@ -203,30 +206,42 @@ def days_plan_from_plan(plan: Plan, *, days: int | None = None, per_day: int | N
         sd_between=size.get("sd_between_days"), sd_within=size.get("sd_within_day"),
         cost_day=size.get("cost_day"), cost_visit=size.get("cost_visit"),
         per_day=per_day, days=days, max_per_day=None if per_day is not None else t["per_day"],
-        confidence=size["confidence"], bound=size["bound"], sides=size["sides"], names=DAY_NAMES)
+        confidence=size["confidence"], bound=size["bound"], sides=size["sides"], strata=strata, names=DAY_NAMES)
 
 
-def _day_promise(plan: Plan, schedule) -> dict:
-    """What the design as drawn promises: the bound on the field days that carry primary visits."""
+def _day_promise(plan: Plan, schedule, strata: int = 1) -> dict:
+    """What the design as drawn promises: the bound on the field days that carry primary visits.
+
+    bernstein and betting run in each stratum on its own day units (as ``assess`` does), so their
+    promise uses the fewest days any stratum has (the widest of the strata's intervals).
+    """
     from collections import Counter
 
-    per = Counter(v.visit_date for v in schedule.visits if v.role == "primary" and v.visit_date is not None)
+    primaries = [v for v in schedule.visits if v.role == "primary" and v.visit_date is not None]
+    per = Counter(v.visit_date for v in primaries)
     k, m_min = len(per), min(per.values(), default=0)
+    units = k
+    if plan.settings["size"]["bound"] in ("bernstein", "betting") and strata > 1 and primaries:
+        units = min(len({v.visit_date for v in primaries if v.stratum == name})
+                    for name in {v.stratum for v in primaries})
     out = {"days": k, "visits": sum(per.values()), "per_day_min": m_min, "per_day_max": max(per.values(), default=0)}
     size = plan.settings["size"]
-    if k < 2:
-        out.update(sentence=f"{k} field day{'s' if k != 1 else ''} with primary visits: no guarantee rests on fewer "
+    if units < 2:
+        out.update(sentence=f"{units} field day{'s' if k != 1 else ''} with primary visits: no guarantee rests on fewer "
                             "than 2 days.", half_width=None, error_bound=1.0, basis="range", assumption="", notes=[])
         return out
     try:
-        p = days_plan_from_plan(plan, days=k, per_day=m_min)
+        p = days_plan_from_plan(plan, days=units, per_day=m_min, strata=strata)
     except GeosampleError as e:  # e.g. a fixed total with a bound that needs what the plan does not give
         out.update(sentence=f"No promise on the {k} field days: {e}", half_width=None, error_bound=1.0,
                    basis="range", assumption="", notes=[])
         return out
     from dataclasses import replace
 
-    p = replace(p, visits=out["visits"])
+    p = replace(p, visits=out["visits"], days=k)
+    if units < k:
+        p = replace(p, notes=p.notes + (f"{p.bound} runs in each of the {strata} strata on its own field days "
+                                         f"(as the assessment does); the promise uses the fewest, {units} days",))
     out.update(sentence=p.sentence(), half_width=p.half_width, error_bound=p.error_bound, basis=p.basis,
                assumption=p.assumption, notes=list(p.notes), bound=p.bound, day_sd=p.day_sd,
                reached=size.get("tolerance") is None or p.half_width <= size["tolerance"] * (1 + 1e-9))
@@ -265,7 +280,7 @@ def _sizing_summary(plan: Plan, frame: Frame, allocation, schedule=None, days_pl
     else:
         guarantee = f"{allocation.total} primary samples; error probability at most {allocation.error_bound:.4f}."
     formula = sizing.FORMULAS.get(size["bound"], "")
-    days = _day_promise(plan, schedule) if schedule is not None else None
+    days = _day_promise(plan, schedule, len(frame.strata)) if schedule is not None else None
     if days is not None:
         independent = guarantee
         guarantee = days["sentence"]
@@ -367,12 +382,12 @@ def make_design(
     crew_days, days_plan = t.get("field_days"), None
     if not crew_days and settings["size"].get("tolerance") is not None:
         # the field days are the units: k days of m visits (stats.twostage), within the season's allowed days
-        days_plan = days_plan_from_plan(plan)
+        days_plan = days_plan_from_plan(plan, strata=len(frame.strata))
         n_temporal = len({getattr(day, "temporal_stratum", None) for day in day_tuple})
         if days_plan.days < n_temporal <= len(day_tuple):
             # every temporal stratum needs a field day: with those more days, fewer visits a day may do
             for m in range(1, t["per_day"] + 1):
-                days_plan = days_plan_from_plan(plan, days=n_temporal, per_day=m)
+                days_plan = days_plan_from_plan(plan, days=n_temporal, per_day=m, strata=len(frame.strata))
                 if days_plan.half_width <= settings["size"]["tolerance"] * (1 + 1e-9):
                     break
         total = allocation.total  # a fixed size.n stays fixed: the report states what its days give

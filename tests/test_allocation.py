@@ -76,6 +76,9 @@ def test_allocation_errors():
 
 @pytest.mark.parametrize("bound", BOUNDS)
 def test_single_stratum_reduces_to_sample_size(bound):
+    if bound == "betting":
+        pytest.skip("betting: sample_size simulates the betting interval; the total over strata keeps Hoeffding's "
+                    "form and the plan sizes the field days by simulation (tests/test_design.py)")
     sides = "one" if bound == "cantelli" else "two"
     n = sample_size(D, range=L, sd=30, confidence=0.9, bound=bound, sides=sides).n
     a = allocate([1.0], tolerance=D, range=L, sd=30, confidence=0.9, bound=bound, sides=sides)

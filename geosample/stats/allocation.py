@@ -275,7 +275,8 @@ def allocate(weights: Sequence[float], *, strata: Sequence[str] | None = None, n
     else:
         hw = _hw(bound, sides, w, n_h, a, sig, L, s)
     if bound == "betting":
-        notes.append("betting: sized with Hoeffding's bound; the betting interval is usually narrower")
+        notes.append("betting: the total over strata uses Hoeffding's form; the field days are sized by simulating "
+                     "the betting interval (the promise on the days says what it rests on)")
     if bound == "bernstein":
         notes.append("bernstein: Bernstein's inequality for the stratified mean as a sum of independent terms "
                      "(variance sum W_h^2 sigma_h^2 / n_h, each term within W_h L_h / n_h of its mean)")

@@ -97,6 +97,12 @@ class SampleSize:
 
     def sentence(self) -> str:
         """The guarantee in one plain sentence (a statement about the sampling procedure)."""
+        if self.bound == "betting":
+            return (f"{self.n} samples: the betting interval (independent samples, every value inside a known range "
+                    f"of length {_num(self.range)}) contains the true {'geometric ' if self.statistic == 'geomean' else ''}"
+                    f"mean in at least {_pct(self.confidence)} of surveys carried out this way; its half-width was at "
+                    f"most {_pm(self.half_width, self.statistic, self.sides)} in 90% of simulated surveys with sd "
+                    f"{_num(self.sigma)} (the tolerance {_num(self.tolerance)} rests on that spread).")
         return (f"{self.n} samples: by {BOUND_NAMES[self.bound]} ({_short_assumption(self)}), "
                 + _claim(self.n, self.tolerance, self.error_bound, self.bound, self.sides, self.statistic,
                          self.confidence) + ".")
@@ -150,6 +156,11 @@ class Achieved:
 
     def sentence(self) -> str:
         """What ``n`` samples buy, in one plain sentence."""
+        if self.bound == "betting":
+            return (f"{self.n} samples: the betting interval (independent samples, every value inside a known range "
+                    f"of length {_num(self.range)}) contains the true mean in at least {_pct(self.confidence)} of "
+                    f"surveys; its half-width was at most {_pm(self.half_width, self.statistic, self.sides)} in 90% of "
+                    f"simulated surveys with sd {_num(self.sigma)}.")
         head = f"{self.n} samples: by {BOUND_NAMES[self.bound]} ({_short_assumption(self)}), "
         at = _pct(self.confidence)
         tail = f"for {at} confidence the tolerance is {_pm(self.half_width, self.statistic, self.sides)}"
@@ -185,7 +196,7 @@ def _short_assumption(r: SampleSize | Achieved) -> str:
         return s
     if b in ("hoeffding", "betting"):
         s = f"independent samples; every value inside a known range of length {_num(r.range)}"
-        return s + ("; conservative for the betting interval" if b == "betting" else "")
+        return s + (f"; half-width simulated with sd {_num(r.sigma)}" if b == "betting" else "")
     if b == "bernstein":
         return (f"independent samples; every value inside a known range of length {_num(r.range)}; "
                 f"sd at most {_num(r.sigma)}")
@@ -266,6 +277,19 @@ def sample_size(tolerance: float, *, range: float | None = None, sd: float | Non
     d = _check_positive(tolerance, "tolerance", nm, "the half-width D of the interval"
                         + (", in log10 units" if statistic == "geomean" else ""))
     a = 1.0 - _check_confidence(confidence, nm)
+    if bound == "betting":  # no closed form: simulate the betting interval (stats.twostage)
+        from .twostage import BETTING_QUANTILE, days_half_width, days_needed
+
+        n = days_needed("betting", sides, d, 1.0 - a, range=L, sd=sig)
+        hw = days_half_width("betting", sides, n, 1.0 - a, range=L, sd=sig)
+        return SampleSize(
+            n=n, bound=bound, sides=sides, confidence=1.0 - a, tolerance=d, range=L, sd=s, sigma=sig,
+            assumption=ASSUMPTIONS[bound], error_bound=a, half_width=hw,
+            formula=FORMULAS[bound] + f" -> n = {n}", statistic=statistic,
+            tolerance_factor=(10.0 ** d) if statistic == "geomean" else None,
+            notes=_sigma_note(L, s) + (f"betting: the interval is built at error {_num(a)} (its coverage rests on "
+                                       f"the range alone); its half-width was at most {_num(hw)} in "
+                                       f"{BETTING_QUANTILE:.0%} of simulated surveys with sd {_num(sig)}",))
     n, x, formula = smallest_n(bound, sides, d, a, sigma=sig, range=L, sd=s)
     if n is None:
         raise InfeasibleError(f"{nm['tolerance']} = {d!r} needs about {x:.3g} samples with the {bound} bound; "
@@ -273,8 +297,6 @@ def sample_size(tolerance: float, *, range: float | None = None, sd: float | Non
     formula += f" -> n = {n}"
     p = _err(bound, sides, [1.0], [n], d, [sig], [L], [s])
     notes = _sigma_note(L, s) if bound in ("chebyshev", "cantelli", "bernstein") else ()
-    if bound == "betting":
-        notes += ("betting: sized with Hoeffding's bound; the betting interval is usually narrower",)
     return SampleSize(
         n=n, bound=bound, sides=sides, confidence=1.0 - a, tolerance=d, range=L, sd=s,
         sigma=sig if bound != "t" else s, assumption=ASSUMPTIONS[bound], error_bound=p,
@@ -320,7 +342,14 @@ def achieved(n: int, *, tolerance: float | None = None, confidence: float | None
     if tolerance is not None:
         d = _check_positive(tolerance, "tolerance", nm, "the half-width D of the interval")
         p = _err(bound, sides, [1.0], [n], d, [sig], [L], [s])
-    hw = _hw(bound, sides, [1.0], [n], 1.0 - conf, [sig], [L], [s])
+    if bound == "betting" and n >= 2:  # simulated (stats.twostage): at most hw in 90% of surveys
+        from .twostage import days_half_width
+
+        hw = days_half_width("betting", sides, n, conf, range=L, sd=sig)
+        if d is not None:
+            p = (1.0 - conf) if hw <= d * (1 + 1e-9) else 1.0
+    else:
+        hw = _hw(bound, sides, [1.0], [n], 1.0 - conf, [sig], [L], [s])
     geo = statistic == "geomean"
     return Achieved(
         n=n, bound=bound, sides=sides, range=L, sd=s, sigma=sig if bound != "t" else s,
