@@ -48,6 +48,8 @@ _LAZY = {
     "draw_sites": "geosample.randomizer.space",
     "load_plan": "geosample.plan",
     "make_design": "geosample.design",
+    "design_tables": "geosample.api",
+    "assess_table": "geosample.api",
 }
 
 __all__ = [
