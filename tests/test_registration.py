@@ -101,7 +101,10 @@ def test_registered_draw_verifies_and_prints_the_public_value(registered, capsys
     assert "verified" in out and "Caf\u00e9 04 11 23 38 45 + 09" in out and "Invented lottery" in out
     assert PUBLIC_DATE in out
     assert main(["verify", str(registered["out"]), "--registration", str(registered["reg"]),
-                 "--public-value", " Caf\u00e9 04 11 23 38 45 + 09 "]) == 0
+                 "--public-value", " Caf\u00e9 04 11 23 38 45 + 09 ", "--json"]) == 0
+    result = json.loads(capsys.readouterr().out)
+    assert result["verified"] is True and result["registered"] is True
+    assert result["registration"]["public_value"] == "Caf\u00e9 04 11 23 38 45 + 09"
 
 
 def test_report_says_the_draw_was_registered(registered):
@@ -196,6 +199,17 @@ def test_drawing_before_the_public_date_is_refused(registered, tmp_path, monkeyp
     err = capsys.readouterr().err
     assert "2026-12-20" in err and "has not begun anywhere" in err and str(registered["reg"]) in err
     assert not (tmp_path / "o").exists()
+
+
+def test_register_json_gives_the_digest_of_the_file_written(tmp_path, monkeypatch, capsys):
+    plan = _unseeded_plan(tmp_path / "in")
+    _clock(monkeypatch, BEFORE)
+    reg = tmp_path / "sub" / "r.json"
+    assert main(["register", str(plan), "-o", str(reg), "--public-source", "Invented beacon, value at 12:00 UTC",
+                 "--public-date", PUBLIC_DATE, "--json", "-q"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["sha256"] == hashlib.sha256(reg.read_bytes()).hexdigest()
+    assert out["public_date"] == PUBLIC_DATE and out["plan_sha256"] == hashlib.sha256(plan.read_bytes()).hexdigest()
 
 
 def test_registering_a_date_that_has_begun_is_refused(tmp_path, monkeypatch, capsys):
