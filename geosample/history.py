@@ -257,22 +257,27 @@ def check_package(folder: str | Path, manifest: dict) -> list[str]:
         return ["manifest: history is not a table of values"]
     diffs: list[str] = []
     name = str(entry.get("file", FILE_NAME))
-    if Path(name).name != name or name in ("", ".", ".."):
-        return [f"manifest: history file name {name!r} is not a plain file name"]
+    if Path(name).name != name or name in ("", ".", "..") or "\\" in name:
+        from .registration import printable as _p
+
+        return [f"manifest: history file name {_p(name)!r} is not a plain file name"]
     path = Path(folder) / name
     if not path.is_file():
         return [f"the draw history {name} is missing from the design folder"]
     rows = read_rows(path)
+    from .registration import printable
+
     key = str(entry.get("content_sha256", ""))
     settings = manifest.get("settings")
-    inputs = {k: (v or {}).get("sha256", "") for k, v in (manifest.get("inputs") or {}).items()}
+    given = manifest.get("inputs") if isinstance(manifest.get("inputs"), dict) else {}
+    inputs = {str(k): str(v.get("sha256", "")) if isinstance(v, dict) else "" for k, v in given.items()}
     if isinstance(settings, dict):
         try:
             again = content_key(settings, inputs)
         except Exception:  # malformed settings are reported by the ordinary verify
             again = None
         if again is not None and again != key:
-            diffs.append(f"history: content key {key[:12]}... is not the one the manifest's settings and inputs "
+            diffs.append(f"history: content key {printable(key[:12])}... is not the one the manifest's settings and inputs "
                          f"give ({again[:12]}...)")
     if not rows:
         return diffs + [f"the draw history {name} holds no draw"]
@@ -283,12 +288,12 @@ def check_package(folder: str | Path, manifest: dict) -> list[str]:
         diffs.append(f"the draw history {name} holds draws over other input layers")
     if str(len(same)) != str(entry.get("draws")) or str(len(same)) != str(manifest.get("draw_count")):
         diffs.append(f"the draw history {name} holds {len(same)} draws of this plan; the manifest says "
-                     f"{entry.get('draws')} (history) and {manifest.get('draw_count')} (draw_count)")
+                     f"{printable(entry.get('draws'))} (history) and {printable(manifest.get('draw_count'))} (draw_count)")
     if str(len(others)) != str(entry.get("other_settings_draws", 0)):
         diffs.append(f"the draw history {name} holds {len(others)} draws with other settings; the manifest says "
-                     f"{entry.get('other_settings_draws', 0)}")
+                     f"{printable(entry.get('other_settings_draws', 0))}")
     last = rows[-1]
     if last.get("seed") != str(manifest.get("seed")) or last.get("draw_id") != entry.get("this_draw"):
-        diffs.append(f"the last draw in {name} is not this design's draw (seed {last.get('seed')}, id "
-                     f"{last.get('draw_id')})")
+        diffs.append(f"the last draw in {name} is not this design's draw (seed {printable(last.get('seed'))}, id "
+                     f"{printable(last.get('draw_id'))})")
     return diffs

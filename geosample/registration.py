@@ -394,9 +394,10 @@ def check_manifest(folder: str | Path, manifest: dict) -> list[str]:
     if manifest.get("seed_source") != "registered":
         diffs.append(f"seed_source is {printable(manifest.get('seed_source'))!r}, not 'registered', in a registered "
                      "design")
-    copy = Path(folder) / str(entry.get("file", FILE_NAME))
-    if Path(str(entry.get("file", FILE_NAME))).name != str(entry.get("file", FILE_NAME)):
-        return diffs + [f"manifest: registration file name {printable(entry.get('file'))!r} is not a plain file name"]
+    name = str(entry.get("file", FILE_NAME))
+    if Path(name).name != name or name in ("", ".", "..") or "\\" in name:
+        return diffs + [f"manifest: registration file name {printable(name)!r} is not a plain file name"]
+    copy = Path(folder) / name
     try:
         reg = read_registration(copy)
     except Exception as exc:  # a damaged copy is a difference, not a crash
@@ -415,11 +416,12 @@ def check_against(manifest: dict, reg: Registration) -> list[str]:
     if entry.get("sha256") != reg.sha256:
         diffs.append(f"the design was drawn under registration {printable(entry.get('sha256'))}, not under "
                      f"{reg.path.name} (SHA-256 {reg.sha256})")
-    plan = manifest.get("plan") or {}
+    plan = manifest.get("plan") if isinstance(manifest.get("plan"), dict) else {}
     if plan.get("sha256") != reg.plan_sha256:
         diffs.append(f"plan: the design's plan has SHA-256 {printable(plan.get('sha256'))}, the registration holds "
                      f"{reg.plan_sha256}")
-    got = {k: (v or {}).get("sha256") for k, v in (manifest.get("inputs") or {}).items()}
+    given = manifest.get("inputs") if isinstance(manifest.get("inputs"), dict) else {}
+    got = {str(k): v.get("sha256") if isinstance(v, dict) else None for k, v in given.items()}
     for label in sorted(set(got) | set(reg.inputs)):
         if got.get(label) != reg.inputs.get(label):
             diffs.append(f"input {printable(label)}: the design's layer has SHA-256 {printable(got.get(label))}, "
