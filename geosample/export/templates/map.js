@@ -151,6 +151,10 @@
   measure.font = "bold 10px system-ui, -apple-system, 'Segoe UI', Roboto, Arial, sans-serif";
 
   var dayInfo = {};
+  // Dashed lines are slow to draw on canvas (a 5,000-site design: most of the first paint), and with
+  // many days together the dashes tell nothing apart: with more than MANY_DAYS days, "all days" draws
+  // the routes solid; one day alone keeps its dash pattern.
+  var MANY_DAYS = 20, plain = D.days.length > MANY_DAYS;
   D.days.forEach(function (d) { dayInfo[d.day] = d; });
   var routeGroup = L.featureGroup().addTo(map);
   var siteGroup = L.featureGroup().addTo(map);
@@ -161,7 +165,7 @@
   D.routes.forEach(function (r) {
     var st = dayInfo[r.day] || {colour: "#000000", dash: null};
     var line = L.polyline(r.coords, {renderer: routeCanvas, color: st.colour, weight: 3.5, opacity: 0.9,
-                                     dashArray: st.dash, smoothFactor: 0.5});
+                                     dashArray: plain ? null : st.dash, smoothFactor: 0.5});
     line.gsRoute = r;
     (routesByDay[r.day] = routesByDay[r.day] || []).push(line);
     allRoutes.push(line);
@@ -180,6 +184,8 @@
                                     weight: 1.5, dashArray: "2 2", color: "#444444", opacity: 1, fill: true,
                                     fillColor: "#FFFFFF", fillOpacity: 0.9, label: s.label, fontSize: 10,
                                     labelColour: "#333333"});
+      m.gsHalf = half;
+      m.options.gsLabelled = true;
       (reservesByStratum[s.stratum] = reservesByStratum[s.stratum] || []).push(m);
       allReserves.push(m);
     }
@@ -255,11 +261,17 @@
   }
   var reservesWanted = false;  // the user's choice in the layer list (all days)
   var switching = false;
+  function routeStyle(line, alone) {
+    var st = dayInfo[line.gsRoute.day] || {dash: null};
+    var dash = (plain && !alone) ? null : st.dash;
+    if (line.options.dashArray !== dash) { line.setStyle({dashArray: dash}); }
+  }
   function showDay(day, fit) {
     current = (day !== null && dayInfo[day]) ? day : null;
     switching = true;
     map.closePopup();
     if (current === null) {
+      allRoutes.forEach(function (l) { routeStyle(l, false); });
       fill(routeGroup, allRoutes);
       fill(siteGroup, allSites);
       fill(reserveGroup, allReserves);
@@ -269,6 +281,7 @@
       var sites = sitesByDay[current] || [], strata = {}, res = [];
       sites.forEach(function (m) { strata[m.gsSite.stratum] = true; });
       D.strata.forEach(function (s) { if (strata[s.name]) { res = res.concat(reservesByStratum[s.name] || []); } });
+      (routesByDay[current] || []).forEach(function (l) { routeStyle(l, true); });
       fill(routeGroup, routesByDay[current] || []);
       fill(siteGroup, sites);
       fill(reserveGroup, res);
@@ -277,14 +290,37 @@
         var b = L.latLngBounds([]);
         (routesByDay[current] || []).forEach(function (l) { b.extend(l.getBounds()); });
         sites.forEach(function (m) { b.extend(m.getLatLng()); });
-        if (b.isValid()) { map.fitBounds(b, {padding: [36, 36], maxZoom: 17, animate: false}); }
+        // A day is fitted clear of the controls (its stops must not hide under them).
+        var pad = controlPadding();
+        if (b.isValid()) {
+          map.fitBounds(b, {paddingTopLeft: [24, pad.top + 14], paddingBottomRight: [24, pad.bottom + 14],
+                            maxZoom: 17, animate: false});
+        }
       }
     }
     switching = false;
+    updateReserveLabels();
     select.value = current === null ? "all" : String(current);
     prevBtn.disabled = !D.days.length || (current !== null && current === D.days[0].day);
     nextBtn.disabled = !D.days.length || (current !== null && current === D.days[D.days.length - 1].day);
   }
+  // Reserve labels only when few enough are in view to be read (else small squares: zoom in to read them).
+  var LABEL_LIMIT = 150;
+  function reserveShape(m, labelled) {
+    if (m.options.gsLabelled === labelled) { return; }
+    m.options.gsLabelled = labelled;
+    m.options.label = labelled ? m.gsSite.label : "";
+    m.options.boxHeight = labelled ? 14 : 8;
+    m.setRadius(labelled ? m.gsHalf : 4);
+  }
+  function updateReserveLabels() {
+    if (!map.hasLayer(reserveGroup)) { return; }
+    var b = map.getBounds(), n = 0, list = reserveGroup.getLayers();
+    list.forEach(function (m) { if (b.contains(m.getLatLng())) { n += 1; } });
+    list.forEach(function (m) { reserveShape(m, n <= LABEL_LIMIT); });
+  }
+  map.on("moveend", updateReserveLabels);
+  reserveGroup.on("add", function (e) { if (e.target === reserveGroup) { updateReserveLabels(); } });
   reserveGroup.on("add", function () { if (!switching && current === null) { reservesWanted = true; } });
   reserveGroup.on("remove", function () { if (!switching && current === null) { reservesWanted = false; } });
 
