@@ -262,6 +262,15 @@ def test_location_is_shown_when_allowed_with_no_network(browser, map_file):
     page.close()
 
 
+def test_location_refused_says_so(browser, map_file):
+    page, problems = _open(browser, map_file, PHONE)  # no geolocation permission granted
+    page.locator(".gs-locate-btn").click()
+    page.wait_for_function("document.querySelector('.gs-locate-msg').textContent.indexOf('not available') >= 0")
+    assert page.evaluate("window.gsLocation") is None
+    assert problems == []
+    page.close()
+
+
 def test_basemap_makes_no_request_until_turned_on(browser, tmp_path):
     path = write_map(build_design(), tmp_path / "map.html", tiles="https://tiles.invalid/{z}/{x}/{y}.png",
                      attribution="Test tiles")
