@@ -247,7 +247,9 @@ def _project(gdf: Any, crs: Any, what: str, kind: str, notes: list[str]) -> Any:
     _check_gdf(gdf, what, kind)
     g = gdf[~(gdf.geometry.isna() | gdf.geometry.is_empty)]
     g = g.to_crs(crs) if not g.crs.equals(crs) else g
-    geoms = shapely.force_2d(g.geometry.values)
+    geoms = np.asarray(g.geometry.values, dtype=object)
+    if shapely.has_z(geoms).any():  # a copy of a regional layer costs memory: only when needed
+        geoms = shapely.force_2d(geoms)
     if kind == "polygon":
         bad = ~shapely.is_valid(geoms)
         if bad.any():
@@ -272,7 +274,9 @@ def _disjoint_parts(geoms: Any) -> np.ndarray | None:
     """
     import shapely
 
-    parts = shapely.get_parts(np.asarray(geoms, dtype=object))
+    geoms = np.asarray(geoms, dtype=object)
+    # single polygons are their own parts: no copy of a regional layer
+    parts = geoms if np.all(shapely.get_type_id(geoms) == 3) else shapely.get_parts(geoms)
     parts = parts[~shapely.is_empty(parts)]
     if len(parts) < _MANY_PARTS or not np.all(shapely.get_type_id(parts) == 3):  # 3: Polygon
         return None

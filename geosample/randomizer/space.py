@@ -503,8 +503,9 @@ def _region(geom: Any) -> _Region:
 class _Grid:
     """Cells of the bounding box classified as inside, outside or on the boundary.
 
-    The boundary is sampled every half cell and each sampled cell is widened by
-    one cell, so every cell the boundary crosses is marked (a point of the
+    The boundary is sampled every half cell (a part that fits in a 2 x 2 block of
+    cells, a small lake of a regional frame, marks its whole bounding box instead)
+    and each marked cell is widened by one cell, so every cell the boundary crosses is marked (a point of the
     boundary is within half a sample step of a sample, hence in the same or a
     neighbouring cell). The other cells form 4-connected groups that the boundary
     does not cross; one centre test decides each group. Points in boundary cells
@@ -521,10 +522,22 @@ class _Grid:
         self.region, self.nx, self.ny = region, nx, ny
         self.x0, self.y0, self.cw, self.ch = x0, y0, w / nx, h / ny
         step = 0.5 * min(self.cw, self.ch)
-        edge = shapely.get_coordinates(shapely.segmentize(region.geom.boundary, step))
         hit = np.zeros((ny, nx), dtype=bool)
-        ix, iy = self._cell(edge[:, 0], edge[:, 1])
-        hit[iy, ix] = True
+        parts = shapely.get_parts(region.geom)
+        b = shapely.bounds(parts)
+        # A part within a 2 x 2 block of cells (a small lake of a regional frame): its whole
+        # bounding box is marked, which covers its boundary, without copying the boundary.
+        bx0, by0 = self._cell(b[:, 0], b[:, 1])
+        bx1, by1 = self._cell(b[:, 2], b[:, 3])
+        small = (bx1 - bx0 <= 1) & (by1 - by0 <= 1)
+        for dx in (0, 1):
+            for dy in (0, 1):
+                hit[np.minimum(by0[small] + dy, by1[small]), np.minimum(bx0[small] + dx, bx1[small])] = True
+        if not small.all():
+            big = parts[~small]
+            edge = shapely.get_coordinates(shapely.segmentize(shapely.boundary(big), step))
+            ix, iy = self._cell(edge[:, 0], edge[:, 1])
+            hit[iy, ix] = True
         hit = ndimage.binary_dilation(hit, structure=np.ones((3, 3), dtype=bool))
         labels, count = ndimage.label(~hit)
         status = np.full((ny, nx), 2, dtype=np.int8)  # 2: boundary, test exactly
