@@ -110,3 +110,48 @@ def test_betting_delivers_the_promise_in_most_seasons(spread):
     # promise: at most ±d in 90% of simulated seasons; 200 fresh seasons: binomial SE 2.1%, margin 7%
     assert share >= BETTING_QUANTILE - 0.07
     assert np.mean(cover) >= 0.90 - 3 * math.sqrt(0.09 / 200)
+
+
+# --------------------------------------------------------------------------- through the assessment itself
+def _visits(k: int, m: int, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
+    """One season's results (k days x m visits, two-point day and visit effects) and each result's day."""
+    day = SB * np.where(rng.random((k, 1)) < 0.5, -1.0, 1.0)
+    visit = SW * np.where(rng.random((k, m)) < 0.5, -1.0, 1.0)
+    return (MU + day + visit).ravel(), np.repeat(np.arange(k), m)
+
+
+@pytest.mark.parametrize("bound, sides, conf, d", [
+    ("chebyshev", "two", 0.90, 15.0), ("cantelli", "one", 0.90, 15.0), ("hoeffding", "two", 0.90, 15.0),
+    ("t", "two", 0.95, 5.0), ("bernstein", "two", 0.95, 12.0), ("betting", "two", 0.90, 8.0),
+])
+def test_assess_keeps_the_plans_promise_on_data_meeting_its_assumptions(bound, sides, conf, d):
+    # The plan (stats.twostage.plan_days) against the assessment's own interval on visit-level results with
+    # their field days (stats.assessment.stratified_interval, the pure core of assess), one stratum, 150
+    # seasons whose results meet the plan's assumptions (in the range, the stated sds).
+    from geosample.stats.assessment import stratified_interval
+
+    spread = dict(sd_between=SB, sd_within=SW, cost_day=200, cost_visit=20) if bound in ("t", "bernstein",
+                                                                                          "betting") else {}
+    p = plan_days(d, range=L, confidence=conf, bound=bound, sides=sides,
+                  per_day=None if spread else 4, **spread)
+    rng = np.random.default_rng([21, len(bound)])
+    hw, covered, day_sd_ok = [], [], []
+    for _ in range(150):
+        y, day = _visits(p.days, p.per_day, rng)
+        iv = stratified_interval(bound, [y], [1.0], [0.0], [L], conf, sides=sides, direction="below", days=[day])
+        hw.append((iv.high - iv.low) / 2 if sides == "two" else iv.high - iv.estimate)
+        covered.append(iv.low <= MU <= iv.high)
+        day_sd_ok.append(y.reshape(p.days, p.per_day).mean(axis=1).std(ddof=1) <= p.day_sd if p.day_sd else True)
+    hw, covered, day_sd_ok = np.array(hw), np.array(covered), np.array(day_sd_ok)
+    print(f"{bound}: k = {p.days}, m = {p.per_day}, promised {p.half_width:.3f}, delivered median {np.median(hw):.3f} "
+          f"max {hw.max():.3f}, coverage {covered.mean():.3f}")
+    if bound in ("chebyshev", "cantelli", "hoeffding"):  # fixed width: exactly the promise
+        assert np.allclose(hw, p.half_width, rtol=1e-9)
+    elif bound == "t":  # approximate (labelled so): about the promise
+        assert np.median(hw) <= p.half_width * 1.05
+    elif bound == "bernstein":  # at most the promise whenever the day means' sd is at most the stated one
+        assert np.all(hw[day_sd_ok] <= p.half_width * (1 + 1e-9)) and day_sd_ok.any()
+    else:  # betting: at most the promise in about 90% of seasons (150 seasons: SE 2.4%, margin 3 SE)
+        assert np.mean(hw <= p.half_width * (1 + 1e-9)) >= BETTING_QUANTILE - 0.075
+    floor = conf - 0.04 if bound == "t" else conf - 3 * math.sqrt(conf * (1 - conf) / 150)
+    assert covered.mean() >= floor
