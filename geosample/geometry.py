@@ -284,6 +284,32 @@ def _disjoint_parts(geoms: Any) -> np.ndarray | None:
     return parts if bool(np.all(left == right)) else None
 
 
+#: Smallest water area (m²) a design is made for; less is a drawing or CRS error.
+MIN_WATER_M2 = 1.0
+
+
+def _check_shore_reachable(water: Any, lo: float, hi: float) -> None:
+    """When shore_m keeps nothing because the water is nowhere ``lo`` m from its shore, say so (not "widen shore_m").
+
+    The farthest any place is from the shore is the radius of the largest circle inside the water
+    (``shapely.maximum_inscribed_circle``, per part).
+    """
+    import shapely
+
+    parts = shapely.get_parts(water)
+    radius = max(shapely.length(shapely.maximum_inscribed_circle(p, max(math.sqrt(p.area) * 1e-4, 1e-6)))
+                 for p in parts)
+    if radius >= lo:
+        return  # the band exists in the water; another constraint removed it (the table says which)
+    sliver = radius < 1.0
+    raise SettingError(
+        "area.shore_m", [lo, hi] if not float(lo).is_integer() or not float(hi).is_integer() else [int(lo), int(hi)],
+        f"a minimum below {radius:.2g} m: the water is nowhere more than {radius:.2g} m from its shore (at most "
+        f"{2 * radius:.2g} m across)",
+        fix=("the water polygon is a sliver, most likely a drawing error: check the water layer" if sliver else
+             f"lower the minimum of shore_m below {radius:.2g} m, or remove shore_m"))
+
+
 def _union(gdf: Any) -> Any:
     """The union of a polygon layer's features.
 
@@ -791,6 +817,10 @@ def build_frame(
     water_area = _area(water_geom)
     if water_area <= 0:
         raise LayerError("area.water: the water layer has no area (degenerate polygons). Give real polygons.")
+    if water_area < MIN_WATER_M2:
+        raise LayerError(f"area.water: the water covers {water_area:.2g} m², smaller than {MIN_WATER_M2:g} m²: "
+                         "no water body to sample. The polygon is a drawing error, or its coordinates are not in "
+                         "the units its CRS says (e.g. kilometres in a CRS of metres): check the layer and its CRS.")
     removed: list[Removal] = []
     frame_geom = water_geom
 
@@ -820,6 +850,8 @@ def build_frame(
         _step(progress, "keeping the shore band")
         after = _polygonal(frame_geom.intersection(shore_band(water_geom, lo, hi)))
         record("shore_m", frame_geom, after, f"kept water {lo:g}-{hi:g} m from the shore (islands included)")
+        if _area(after) <= 0:
+            _check_shore_reachable(water_geom, lo, hi)
         frame_geom = after
 
     # ---- access and reach

@@ -510,3 +510,14 @@ def test_reach_must_be_a_positive_distance(square_lake, bad):
     access = utm_gdf([shapely.Point(X0 + 10, Y0 + 10)])
     with pytest.raises(SettingError, match="area.reach_m.*a positive number of metres"):
         build_frame(square_lake, access=access, reach_m=bad)
+
+
+def test_shore_m_past_the_middle_of_a_narrow_lake_names_the_half_width():
+    # a 30 m wide channel: no place is more than 15 m from the shore (half its width: geometry, common practice),
+    # so shore_m = [20, 100] keeps nothing; the message says how far the middle is instead of "widen shore_m"
+    channel = utm_gdf([shapely.box(X0, Y0, X0 + 3000, Y0 + 30)], name=["Long Cut"])
+    with pytest.raises(SettingError) as err:
+        build_frame(channel, shore_m=(20, 100))
+    msg = str(err.value)
+    assert "area.shore_m" in msg and "nowhere more than 15 m from its shore" in msg
+    assert "below 15 m" in msg

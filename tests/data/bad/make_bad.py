@@ -233,6 +233,13 @@ def more_plan_cases() -> None:
     _variant("strata-field-unknown", ["area.strata_field", "no field 'basin'", "'zone'"],
              area_extra='strata = "zones.geojson"\nstrata_field = "basin"\n',
              files={"zones.geojson": geojson([({"zone": "West"}, ring(west)), ({"zone": "East"}, ring(east))])})
+    sliver = [(0.0, 0.0), (0.03, 0.0), (0.03, 2e-6), (0.0, 2e-6), (0.0, 0.0)]  # 2.3 km long, 0.2 m wide
+    _variant("water-sliver-shore", ["area.shore_m = [20, 1500]", "nowhere more than 0.1", "from its shore",
+                                    "drawing error"], area_extra="shore_m = [20, 1500]\n",
+             water=geojson([({"name": "Pellow Tarn"}, ring(sliver))]))
+    speck = [(0.0, 0.0), (2e-6, 0.0), (2e-6, 2e-6), (0.0, 2e-6), (0.0, 0.0)]  # 0.15 m x 0.22 m
+    _variant("water-speck", ["area.water", "0.034 m²", "smaller than 1 m²", "CRS"],
+             water=geojson([({"name": "Pellow Tarn"}, ring(speck))]))
     write_case("plan-not-utf8", {"plan.toml": plan_text("plan-not-utf8", title='"Pellow Tarn caf\u00e9"').encode("cp1252"),
                                  "water.geojson": tarn_layer()}, ["not UTF-8", "Save it as UTF-8"])
 
