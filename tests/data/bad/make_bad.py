@@ -431,7 +431,7 @@ RESULTS_EXPECT = {
     "results-huge-value": (["row 2", "'1e308'", "1e+15"], 2),
     "results-nan-value": (["unreadable results", "row 2: 'nan'"], 2),
     "results-infinite-value": (["unreadable results", "row 2: '1e400'"], 2),
-    "results-two-result-columns": (["2 columns named 'result'", "columns 14 and 21"], 2),
+    "results-two-result-columns": (["2 columns named 'result'", "which one to read cannot be known"], 2),
     "results-unterminated-quote": (["row 3", "quote", "never closed", "column 'result'"], 2),
     "results-sep-line": (["sep=;", "semicolons"], 0),
     "results-empty": (["is empty"], 2),
