@@ -41,7 +41,10 @@ def stratum_name(value: object, *, setting: str = "stratum name", where: str = "
     SettingError
         The name holds a control character or a line break, or is empty.
     """
-    text = unicodedata.normalize("NFC", "" if value is None else str(value)).strip()
+    text = value.strip() if isinstance(value, str) else ("" if value is None else str(value).strip())
+    if text and text.isascii() and text.isprintable() and "  " not in text:
+        return text  # the common case, already normal: fast for a layer of a million lakes
+    text = unicodedata.normalize("NFC", text).strip()
     bad = [c for c in text if unicodedata.category(c) in ("Cc", "Zl", "Zp")]
     if bad:
         kinds = sorted({("a line break" if c in "\n\r\u2028\u2029\x0b\x0c\x85" else
