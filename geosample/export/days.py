@@ -196,7 +196,7 @@ def _map(design: Design, day: DayFiles, density: str) -> str:
     if not geoms:
         return ""
     width, height = MAP_SIZE[density]
-    extent = padded_extent(geoms, pad=0.05, aspect=width / height)
+    extent = padded_extent(geoms, pad=0.08, aspect=width / height)
     return svg_map(frame, extent, width=width, height=height, lines=lines, markers=markers,
                    title=f"Day {day.day} route")
 

@@ -1,6 +1,6 @@
 """Small static maps as inline SVG, for printed pages (the day sheets and the report).
 
-No network, no tiles, no script: the frame's water, strata, closed areas, routes
+No network, no tiles, no script: land in grey, the frame's water, strata, closed areas, routes
 and sites, drawn from the frame's metric CRS (so a metre is a metre in both
 directions, and up is grid north), clipped to an extent, with a scale bar.
 Coordinates are rounded to 0.1 px so identical designs give identical bytes.
@@ -170,7 +170,7 @@ def svg_map(frame: Any, extent: tuple[float, float, float, float], *, width: flo
            '<defs><pattern id="gs-hatch" width="6" height="6" patternUnits="userSpaceOnUse" '
            f'patternTransform="rotate(45)"><line x1="0" y1="0" x2="0" y2="6" stroke="{CLOSED}" '
            'stroke-width="1.2"/></pattern></defs>',
-           f'<rect x="0" y="0" width="{width:g}" height="{height:g}" fill="#f4f1ea"/>']
+           f'<rect x="0" y="0" width="{width:g}" height="{height:g}" fill="#dedbd2"/>']
     water = _prepare(frame.water, extent, tol)
     if water is not None:
         out.append(f'<path d="{c.area(water)}" fill="#ffffff" stroke="{WATER_EDGE}" stroke-width="1" '
