@@ -16,6 +16,21 @@ import shapely
 LON0, LAT0 = -97.55, 46.05
 
 
+def invented_lakes(n: int, seed: int = 1) -> geopandas.GeoDataFrame:
+    """n invented round lakes (radius 50-400 m, 16-32 vertices) on a jittered 1 km grid, UTM 16N,
+    named "Lake 1".."Lake n" (shared by the many-lakes tests and benchmarks)."""
+    import numpy as np
+
+    rng = np.random.default_rng(seed)
+    g = int(np.ceil(np.sqrt(n)))
+    cell = rng.permutation(g * g)[:n]
+    cx = 500_000 + (cell % g) * 1000.0 + 500 + rng.uniform(-50, 50, n)
+    cy = 4_800_000 + (cell // g) * 1000.0 + 500 + rng.uniform(-50, 50, n)
+    r = np.exp(rng.uniform(np.log(50), np.log(400), n))
+    polys = shapely.buffer(shapely.points(cx, cy), r, quad_segs=rng.integers(4, 9))
+    return geopandas.GeoDataFrame({"name": [f"Lake {i + 1}" for i in range(n)]}, geometry=polys, crs=32616)
+
+
 def lonlat_box(dlon0: float, dlat0: float, dlon1: float, dlat1: float) -> shapely.Polygon:
     """A lon/lat rectangle given as offsets in degrees from (LON0, LAT0)."""
     return shapely.box(LON0 + dlon0, LAT0 + dlat0, LON0 + dlon1, LAT0 + dlat1)

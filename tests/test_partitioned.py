@@ -9,27 +9,20 @@ from __future__ import annotations
 
 import dask
 import dask_geopandas
-import geopandas
 import numpy as np
 import pyproj
 import pytest
 import shapely
 
+from conftest import invented_lakes
 from geosample.errors import SettingError
 from geosample.model import Allocation, Frame, Stratum
 from geosample.randomizer import space
 from geosample.randomizer.partitioned import draw_partitioned, partitioned_frame
 
 
-def lakes(n: int, seed: int = 3) -> geopandas.GeoDataFrame:
-    """n invented round lakes on a jittered 1 km grid (UTM 16N)."""
-    rng = np.random.default_rng(seed)
-    g = int(np.ceil(np.sqrt(n)))
-    cell = rng.permutation(g * g)[:n]
-    cx = 500_000 + (cell % g) * 1000.0 + 500 + rng.uniform(-50, 50, n)
-    cy = 4_800_000 + (cell // g) * 1000.0 + 500 + rng.uniform(-50, 50, n)
-    r = np.exp(rng.uniform(np.log(50), np.log(400), n))
-    return geopandas.GeoDataFrame(geometry=shapely.buffer(shapely.points(cx, cy), r, quad_segs=6), crs=32616)
+def lakes(n: int):
+    return invented_lakes(n, seed=3)
 
 
 def local_draw(gdf, n, method, reserve, seed):

@@ -16,11 +16,11 @@ from __future__ import annotations
 
 import time
 
-import geopandas
 import numpy as np
 import pytest
 import shapely
 
+from conftest import invented_lakes
 from geosample.geometry import build_frame
 from geosample.randomizer import space
 from geosample.stats.sizing import allocate
@@ -30,15 +30,7 @@ TARGET_S = 30.0
 GROWTH_10K_OVER_3K = 5.0
 
 
-def lakes(n: int, seed: int = 1) -> geopandas.GeoDataFrame:
-    rng = np.random.default_rng(seed)
-    g = int(np.ceil(np.sqrt(n)))
-    cell = rng.permutation(g * g)[:n]
-    cx = 500_000 + (cell % g) * 1000.0 + 500 + rng.uniform(-50, 50, n)
-    cy = 4_800_000 + (cell // g) * 1000.0 + 500 + rng.uniform(-50, 50, n)
-    r = np.exp(rng.uniform(np.log(50), np.log(400), n))
-    polys = shapely.buffer(shapely.points(cx, cy), r, quad_segs=rng.integers(4, 9))
-    return geopandas.GeoDataFrame({"name": [f"Lake {i + 1}" for i in range(n)]}, geometry=polys, crs=32616)
+lakes = invented_lakes  # (tests/conftest.py; the regional benchmark imports it from here)
 
 
 def frame_and_draws(layer):
