@@ -4,7 +4,7 @@ Goals (issue "Speed at scale"): a 1M-lake frame plus a 500-site balanced draw in
 60 s CPU and 4 GiB peak, growth about linear from 10k to 1M lakes; a draw from the frame
 held in partitions (dask-geopandas) gives exactly the local draw's sites.
 
-The lakes are invented (``test_bench_many_waters.lakes``: round, radius 50-400 m, on a
+The lakes are invented (``tests/conftest.invented_lakes``: round, radius 50-400 m, on a
 jittered 1 km grid, UTM 16N) and written once to GeoParquet. Each measured job runs in a
 fresh Python process that reads the file, so CPU time (process time) and peak memory
 (max RSS) are the job's own, not the generator's. Run with
@@ -64,9 +64,10 @@ def _run(code: str, *args: str) -> dict:
 
 
 MAKE = textwrap.dedent('''
-    import sys
-    sys.path.insert(0, sys.argv[3])
-        lakes(int(sys.argv[1])).to_parquet(sys.argv[2], row_group_size=50_000)
+    import os, sys
+    sys.path[:0] = [sys.argv[3], os.path.dirname(sys.argv[3])]
+    from conftest import invented_lakes
+    invented_lakes(int(sys.argv[1])).to_parquet(sys.argv[2], row_group_size=50_000)
     print("{}")
 ''')
 
