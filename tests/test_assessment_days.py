@@ -175,3 +175,60 @@ def test_the_populations_break_the_visit_formulas(coverage_table):
     # dominate, and Hoeffding falls below nominal in the stress case (issue 10 measured 76-87%)
     assert coverage_table["dominant"]["t on visits"] < 0.8
     assert coverage_table["stress"]["hoeffding on visits"] < CONFIDENCE
+
+
+# --------------------------------------------------------------------------- unequal day probabilities
+# The field days are a stratified sample over temporal strata (weeks): k_s of K_s days, so a day of a short week
+# is drawn with a higher probability. Each day is weighted by 1 / p (Hajek; randomizer/days.py docstring,
+# Horvitz-Thompson): est = sum_h W_h sum_j y_j / p_j / sum_j 1 / p_j.
+def test_estimate_weights_days_by_their_inclusion_probabilities():
+    vals = {"North basin": [10.0, 20.0, 30.0, 40.0], "South basin": [50.0, 70.0]}
+    days = {"North basin": ("1", "1", "2", "3"), "South basin": ("2", "3")}
+    day_p = {"North basin": (0.5, 0.5, 0.2, 0.2), "South basin": (0.2, 0.2)}
+    m = fake_manifest(strata=(("North basin", 0.6), ("South basin", 0.4)), range=200, bound="hoeffding")
+    res = fake_results(vals, days=days)
+    for st in res.strata:
+        st.day_p = day_p[st.name]
+    a = assess(res, m)
+    north = (10 / 0.5 + 20 / 0.5 + 30 / 0.2 + 40 / 0.2) / (2 / 0.5 + 2 / 0.2)  # by hand
+    assert a.estimate == pytest.approx(0.6 * north + 0.4 * 60.0)
+    assert a.strata[0].mean == pytest.approx(north)
+
+
+T_ALLOWED, T_DRAWN = (4, 10), (2, 2)  # a short week and a long one: p = 0.5 and 0.2
+
+
+def _temporal_season(pop, rng):
+    """pop: (14 days, N sites) for one stratum; 2 days drawn in each week, 3 sites per day."""
+    starts = np.cumsum((0,) + T_ALLOWED[:-1])
+    days = np.concatenate([st + rng.choice(K_s, size=k_s, replace=False)
+                           for st, K_s, k_s in zip(starts, T_ALLOWED, T_DRAWN)])
+    p = np.repeat([k / K for k, K in zip(T_DRAWN, T_ALLOWED)], T_DRAWN)
+    t = np.repeat(np.arange(2), T_DRAWN)
+    sites = np.concatenate([rng.choice(pop.shape[1], size=3, replace=False) for _ in days])
+    return (pop[np.repeat(days, 3), sites], np.repeat(np.arange(days.size), 3), np.repeat(p, 3), np.repeat(t, 3))
+
+
+def test_weighted_estimate_is_unbiased_and_the_bounds_cover_with_unequal_day_probabilities():
+    # the short week is wet (values near the top), the long one dry: equal weights would over-weight the wet days
+    rng = np.random.default_rng(7)
+    pop = np.clip(np.concatenate([rng.normal(65, 5, size=(4, 30)), rng.normal(15, 5, size=(10, 30))]), 0, 80)
+    true = float(pop.mean())
+    tw = (4 / 14, 10 / 14)
+    reps, est_w, est_u = 400, [], []
+    hits = dict.fromkeys(("chebyshev", "hoeffding", "t", "bernstein", "betting"), 0)
+    for _ in range(reps):
+        y, day, p, t = _temporal_season(pop, rng)
+        est_w.append(float(np.sum(y / p) / np.sum(1 / p)))
+        est_u.append(float(y.mean()))
+        for bound in hits:
+            iv = stratified_interval(bound, [y], [1.0], [0.0], [80.0], 0.9, days=[day], day_p=[p], temporal=[t],
+                                     temporal_weights=tw)
+            hits[bound] += iv.low <= true <= iv.high
+    se = np.std(est_w) / math.sqrt(reps)
+    assert abs(np.mean(est_w) - true) < 4 * se, (np.mean(est_w), true)
+    assert np.mean(est_u) - true > 10  # what equal weights would do here
+    print("\nunequal day probabilities, coverage at 90%:", {b: h / reps for b, h in hits.items()})
+    for bound, h in hits.items():
+        if bound != "t":
+            assert at_least_nominal(h / reps, 0.9, reps), (bound, h / reps)

@@ -185,13 +185,65 @@ class _Stratum:
     censored_left: int
     censored_right: int
     day: np.ndarray | None = None  # field day of each value: an index into the season's used days, in date order
+    inv_p: np.ndarray | None = None  # 1 / the inclusion probability of each value's field day
+    tstrat: np.ndarray | None = None  # temporal stratum (index into tweights) of each value's field day
+    tweights: tuple[float, ...] = ()  # temporal strata's shares of the season's allowed days, K_s / K
+
+
+def _shares(s: _Stratum) -> np.ndarray:
+    """Each value's share of its stratum mean: 1/n, or (1/p_j) / sum(1/p) with unequal day probabilities (Hajek)."""
+    if s.inv_p is None or s.y.size == 0:
+        return np.full(s.y.size, 1.0 / max(s.y.size, 1))
+    return s.inv_p / s.inv_p.sum()
+
+
+def _mean(s: _Stratum) -> float:
+    return float(np.dot(_shares(s), s.y)) if s.y.size else math.nan
+
+
+def _unequal(strata: Sequence[_Stratum]) -> bool:
+    """Whether the field days carry unequal inclusion probabilities (temporal strata sampled at different rates)."""
+    ps = [s.inv_p for s in strata if s.inv_p is not None and s.inv_p.size]
+    if not ps:
+        return False
+    allp = np.concatenate(ps)
+    return bool(np.ptp(allp) > 1e-9 * allp.max())
+
+
+def _share_matrix(strata: Sequence[_Stratum]) -> np.ndarray | None:
+    """Each field day's share of each stratum mean (rows: days with results; columns: strata)."""
+    if any(s.day is None for s in strata):
+        return None
+    k = max((int(s.day.max()) for s in strata if s.day.size), default=-1) + 1
+    A = np.zeros((k, len(strata)))
+    for h, s in enumerate(strata):
+        np.add.at(A[:, h], s.day.astype(int), _shares(s))
+    used = np.zeros(k, bool)
+    for s in strata:
+        used[s.day.astype(int)] = True
+    return A[used]
+
+
+def _composition_bias(s: _Stratum) -> float:
+    """Largest gap between the mean over this stratum's day units and the season mean it stands for.
+
+    The day units are weighted equally, so their mean stands for sum_s (k_s / k) mu_s instead of
+    sum_s (K_s / K) mu_s; with every mu_s inside the declared range the gap is at most
+    (L / 2) sum_s |k_s / k - K_s / K| (both weight vectors add up to 1).
+    """
+    if s.tstrat is None or not s.tweights or s.y.size == 0 or s.L is None:
+        return 0.0
+    V = np.asarray(s.tweights, float)
+    k_s = np.bincount(s.tstrat.astype(int), minlength=V.size)[: V.size]
+    return float(s.L / 2.0 * np.abs(k_s / k_s.sum() - V).sum())
 
 
 def _day_key(label: str) -> tuple:
     return (0, int(label), "") if label.isdigit() else (1, 0, label)
 
 
-def _day_labels(results: Any, schedule_rows: Sequence[dict] | None) -> dict[str, list[str]] | None:
+def _day_labels(results: Any, schedule_rows: Sequence[dict] | None
+                ) -> dict[str, list[tuple[str, str, float | None]]] | None:
     """Per stratum, the field day of each used value, or None when nothing says which day a value is from.
 
     A primary takes its schedule row's ``day``; a reserve (no day in the schedule) the drawn
@@ -200,15 +252,27 @@ def _day_labels(results: Any, schedule_rows: Sequence[dict] | None) -> dict[str,
     """
     given = {s.name: getattr(s, "days", None) for s in results.strata}
     if given and all(v is not None for v in given.values()):
-        return {k: [str(x) for x in v] for k, v in given.items()}
+        out0 = {}
+        for sr in results.strata:
+            ps = getattr(sr, "day_p", None) or (None,) * len(sr.days)
+            dates = getattr(sr, "day_dates", None) or ("",) * len(sr.days)
+            out0[sr.name] = [(str(d), str(t), p) for d, t, p in zip(sr.days, dates, ps)]
+        return out0
     if not schedule_rows:
         return None
     sched = {str(r.get("site_id") or "").strip(): r for r in schedule_rows}
     date_day: dict[str, str] = {}
+    day_p: dict[str, float | None] = {}
+    day_date: dict[str, str] = {}
     for r in schedule_rows:
         d, date = str(r.get("day") or "").strip(), str(r.get("visit_date") or "").strip()
         if d and date:
             date_day.setdefault(date, d)
+            day_date.setdefault(d, date)
+            try:
+                day_p.setdefault(d, float(r.get("day_inclusion_p") or "nan"))
+            except ValueError:
+                day_p.setdefault(d, math.nan)
     recs = {r.row: r for r in getattr(results, "records", ())}
     out: dict[str, list[str]] = {}
     for sr in results.strata:
@@ -218,7 +282,12 @@ def _day_labels(results: Any, schedule_rows: Sequence[dict] | None) -> dict[str,
             d = str((sched.get(rec.site_id) or {}).get("day") or "").strip() if rec is not None else ""
             if not d and rec is not None and rec.sampled_at is not None:
                 d = date_day.get(rec.sampled_at.date().isoformat(), "")
-            labels.append(d or f"unscheduled {rec.site_id if rec is not None else row}")
+            if d:
+                p = day_p.get(d)
+                labels.append((d, day_date.get(d, ""), None if p is None or not math.isfinite(p) else p))
+            else:
+                labels.append((f"unscheduled {rec.site_id if rec is not None else row}",
+                               rec.sampled_at.date().isoformat() if rec is not None and rec.sampled_at else "", None))
         out[sr.name] = labels
     return out
 
@@ -247,9 +316,10 @@ def _unit_strata(strata: Sequence[_Stratum]) -> list[_Stratum]:
         if s.day is None or s.y.size == 0:
             out.append(s)
             continue
-        u, inv = np.unique(s.day, return_inverse=True)
+        u, first, inv = np.unique(s.day, return_index=True, return_inverse=True)
         means = np.bincount(inv, weights=s.y) / np.bincount(inv)
-        out.append(replace(s, y=means, day=u))
+        out.append(replace(s, y=means, day=u, inv_p=None if s.inv_p is None else s.inv_p[first],
+                           tstrat=None if s.tstrat is None else s.tstrat[first]))
     return out
 
 
@@ -273,10 +343,28 @@ def _stratum_inputs(results: Any, manifest: dict, schedule_rows: Sequence[dict] 
     labels = _day_labels(results, schedule_rows)
     if labels is None:
         return out, False
-    every = sorted({d for v in labels.values() for d in v}, key=_day_key)
+    every = sorted({d for v in labels.values() for d, _, _ in v}, key=_day_key)
     index = {d: i for i, d in enumerate(every)}
-    return [replace(s, day=np.array([index[d] for d in labels.get(s.name, ())], dtype=int))
-            if len(labels.get(s.name, ())) == s.y.size else s for s in out], True
+    # temporal strata of the season (manifest "days"): each allowed date's stratum and the strata's shares K_s / K
+    md = manifest.get("days") if isinstance(manifest.get("days"), dict) else {}
+    tnames = [t.get("name") for t in (md.get("strata") or [])]
+    allowed = np.array([float(t.get("allowed") or 0) for t in (md.get("strata") or [])])
+    tweights = tuple(allowed / allowed.sum()) if allowed.size and allowed.sum() > 0 else ()
+    date_t = {str(d.get("date")): d.get("temporal_stratum") for d in (md.get("days") or [])}
+    tindex = {n: i for i, n in enumerate(tnames)}
+    done = []
+    for s in out:
+        lab = labels.get(s.name, [])
+        if len(lab) != s.y.size:
+            done.append(s)
+            continue
+        day = np.array([index[d] for d, _, _ in lab], dtype=int)
+        ps = [p for _, _, p in lab]
+        inv_p = None if any(p is None or p <= 0 for p in ps) else 1.0 / np.array(ps, float)
+        ts = [tindex.get(date_t.get(t)) for _, t, _ in lab]
+        tstrat = None if (not tweights or any(t is None for t in ts)) else np.array(ts, dtype=int)
+        done.append(replace(s, day=day, inv_p=inv_p, tstrat=tstrat, tweights=tweights if tstrat is not None else ()))
+    return done, True
 
 
 def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str, direction: str,
@@ -284,7 +372,7 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
         Interval, BettingSequence | None, list[BettingSequence]]:
     w = np.array([s.weight for s in strata])
     n_h = np.array([s.y.size for s in strata])
-    means = np.array([s.y.mean() for s in strata])
+    means = np.array([_mean(s) for s in strata])
     est = float(stratified_mean(w, means))
     H = len(strata)
     a = 1 - confidence
@@ -292,7 +380,7 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
     seqs: list[BettingSequence] = []
     if bound in ("chebyshev", "cantelli", "hoeffding"):
         L = np.array([s.L for s in strata], float)
-        counts = _counts(strata)
+        counts = _share_matrix(strata)  # each day's share of each stratum mean (c_hi / n_h with equal days)
         if bound == "chebyshev":
             d = chebyshev_half_width(w, n_h, L, confidence, counts=counts)
             if sides == "one":
@@ -302,8 +390,9 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
         else:
             d = hoeffding_half_width(w, n_h, L, confidence, sides, counts=counts)
         df = None
-    elif bound == "t" and _clustered(strata):
-        d, df = cluster_t_half_width(w, [s.y for s in strata], [s.day for s in strata], confidence, sides)
+    elif bound == "t" and (_clustered(strata) or _unequal(strata)):
+        d, df = cluster_t_half_width(w, [s.y for s in strata], [s.day for s in strata], confidence, sides,
+                                     shares=[_shares(s) for s in strata])
     elif bound == "t":
         sds = np.array([s.y.std(ddof=1) for s in strata])
         d_arr, df_arr = t_half_width(w, n_h, sds, confidence, sides)
@@ -316,6 +405,14 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
         if H > 1:
             notes.append(f"empirical Bernstein bound in each of the {H} strata at error {a / H:.4g} "
                          "(union bound), combined with the area weights")
+        b = 0.0
+        if _unequal(strata):
+            est = float(stratified_mean(w, [float(s.y.mean()) for s in strata]))
+            b = sum(s.weight * _composition_bias(s) for s in strata)
+            d += b
+            notes.append(f"the field days were drawn with unequal probabilities (temporal strata); the day means are "
+                         f"weighted equally, so the interval is widened by {b:.3g} on each side, the most the "
+                         "temporal strata's shares among the drawn days can move their mean")
         short = [s for s in strata if s.y.size < 2]
         if short:
             # no switch to another bound: a stratum whose spread cannot be estimated contributes its whole
@@ -323,6 +420,7 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
             lo = sum(s.weight * ((s.lower if s.y.size < 2 else float(s.y.mean()) - p)) for s, p in zip(strata, parts))
             hi = sum(s.weight * ((s.lower + s.L if s.y.size < 2 else float(s.y.mean()) + p))
                      for s, p in zip(strata, parts))
+            lo, hi = lo - b, hi + b
             notes.append("the empirical Bernstein bound needs at least 2 results in a stratum to estimate its spread: "
                          f"{', '.join(s.name for s in short)} contribute{'s' if len(short) == 1 else ''} "
                          "the whole declared range")
@@ -345,6 +443,14 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
             notes.append(f"betting confidence sequence in each of the {H} strata at error {a / H:.4g} (union bound "
                          "over strata), end points combined with the area weights: valid, but wider than a "
                          "single-stratum sequence would be")
+        if _unequal(strata):
+            b = sum(s.weight * _composition_bias(s) for s in strata)
+            lo, hi = lo - b, hi + b
+            est = float(stratified_mean(w, [float(s.y.mean()) for s in strata]))
+            notes.append(f"the field days were drawn with unequal probabilities (temporal strata); the day means are "
+                         f"weighted equally, so the interval is widened by {b:.3g} on each side, the most the "
+                         "temporal strata's shares among the drawn days can move their mean (half the range times "
+                         "the total share gap)")
         if sides == "one":
             lo, hi = (-math.inf, hi) if direction == "below" else (lo, math.inf)
         return Interval(est, lo, hi, confidence, "betting", sides, None, None, tuple(notes)), None, seqs
@@ -358,17 +464,26 @@ def _interval(bound: str, strata: list[_Stratum], confidence: float, sides: str,
 
 def stratified_interval(bound: str, values: Sequence[Sequence[float]], weights: Sequence[float],
                         lowers: Sequence[float], ranges: Sequence[float], confidence: float, *, sides: str = "two",
-                        direction: str = "below", days: Sequence[Sequence[int]] | None = None) -> Interval:
+                        direction: str = "below", days: Sequence[Sequence[int]] | None = None,
+                        day_p: Sequence[Sequence[float]] | None = None,
+                        temporal: Sequence[Sequence[int]] | None = None,
+                        temporal_weights: Sequence[float] = ()) -> Interval:
     """The plan's interval for a stratified mean from numbers alone (no files, no wording).
 
     ``values[h]``: stratum h's results on the analysis scale; ``days[h]``: the field
     day (an integer, comparable across strata, in date order) of each. With days,
     the field days are the independent units, as in :func:`assess`: Chebyshev,
     Cantelli and Hoeffding on the days' contributions, t on the day-level variance,
-    empirical Bernstein and betting on each stratum's day means.
+    empirical Bernstein and betting on each stratum's day means. ``day_p[h]``: the
+    inclusion probability of each value's field day (Hajek weights 1/p when they
+    differ); ``temporal[h]``: its temporal stratum, an index into ``temporal_weights``
+    (K_s / K), used to bound how far equally weighted day means can be off.
     """
     strata = [_Stratum(f"s{h}", float(w), np.asarray(v, float), float(lo), float(L), None, 0, 0,
-                       None if days is None else np.asarray(days[h], int))
+                       None if days is None else np.asarray(days[h], int),
+                       None if day_p is None else 1.0 / np.asarray(day_p[h], float),
+                       None if temporal is None else np.asarray(temporal[h], int),
+                       tuple(temporal_weights) if temporal is not None else ())
               for h, (v, w, lo, L) in enumerate(zip(values, weights, lowers, ranges))]
     if bound in ("bernstein", "betting") and _clustered(strata):
         strata = _unit_strata(strata)
@@ -391,7 +506,7 @@ def _void_interval(bound: str, strata: list[_Stratum], confidence: float, sides:
         stretched.append(replace(s, lower=lo, L=hi - lo))
     a = _interval(bound, inside, confidence, sides, direction)[0]
     b = _interval(bound, stretched, confidence, sides, direction)[0]
-    est = float(stratified_mean([s.weight for s in strata], [float(s.y.mean()) for s in strata]))
+    est = float(stratified_mean([s.weight for s in strata], [_mean(s) for s in strata]))
     low, high = min(a.low, b.low, est), max(a.high, b.high, est)
     if sides == "one":
         low, high = (-math.inf, high) if direction == "below" else (low, math.inf)
@@ -601,17 +716,18 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm", schedule_rows:
     pvals: list[float] = []
     for s, r in zip(strata, raw):
         sd = float(r.y.std(ddof=1)) if r.y.size > 1 else None
-        one = shown([_Stratum(s.name, 1.0, s.y, s.lower, s.L, s.n_planned, 0, 0, s.day)])[0]
+        one = shown([replace(s, weight=1.0, censored_left=0, censored_right=0)])[0]
         if clip:
             one = _clip(one, s.lower, math.inf)
         p = None
         if a_crit is not None and not (range_void and (s.name in void_strata or no_range)):
-            c1 = _counts([s])
+            c1 = _share_matrix([s])
             p = stratum_pvalue(bound, s.y, a_crit, L=s.L, lower=s.lower, confidence=confidence, sides=sides,
                                direction=direction, counts=None if c1 is None else c1[:, 0],
-                               days=s.day if _clustered([s]) else None)
+                               days=s.day if (_clustered([s]) or _unequal([s])) else None,
+                               shares=_shares(s) if (_unequal([s]) and bound not in ("bernstein", "betting")) else None)
             pvals.append(p)
-        per.append(StratumEstimate(s.name, s.weight, int(r.y.size), s.n_planned, float(s.y.mean()), sd, one.low,
+        per.append(StratumEstimate(s.name, s.weight, int(r.y.size), s.n_planned, _mean(s), sd, one.low,
                                    one.high, s.censored_left, s.censored_right, p))
     if a_crit is not None:
         adj = iter(adjust_pvalues(pvals, adjust))

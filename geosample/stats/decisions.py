@@ -88,7 +88,8 @@ def adjust_pvalues(p, method: str = "holm") -> np.ndarray:
 
 
 def stratum_pvalue(bound: str, values, criterion: float, *, L: float | None, lower: float,
-                   confidence: float, sides: str, direction: str, counts=None, days=None) -> float:
+                   confidence: float, sides: str, direction: str, counts=None, days=None,
+                   shares=None) -> float:
     """p-value of one stratum's comparison with the criterion, from the same bound.
 
     For the range bounds it is the smallest error probability at which the
@@ -100,16 +101,19 @@ def stratum_pvalue(bound: str, values, criterion: float, *, L: float | None, low
     ``n^2 / sum_i c_i^2`` (``n`` when every day has one result); ``days`` (the field day
     of each value) give t the day-level variance with ``k - 1`` degrees of freedom.
     Bernstein and betting take day means as ``values`` when days carry several results.
+    ``shares`` (each value's share of the mean) replace 1/n for days drawn with unequal
+    probabilities; ``counts`` may then be the days' shares.
     """
     v = np.asarray(values, float)
     n = v.size
+    a_j = None if shares is None else np.asarray(shares, float)
     n_eff = float(n)
     if counts is not None and n:
         c = np.asarray(counts, float)
         n_eff = float(c.sum() ** 2 / np.sum(c**2))
     if n == 0:
         return 1.0
-    mean = float(v.mean())
+    mean = float(v.mean()) if a_j is None else float(np.dot(a_j, v))
     diff = criterion - mean if (sides == "one" and direction == "below") else (
         mean - criterion if sides == "one" else abs(mean - criterion))
     if bound == "t":
@@ -122,7 +126,7 @@ def stratum_pvalue(bound: str, values, criterion: float, *, L: float | None, low
             k = labels.size
             if k < 2:
                 return 1.0
-            u = np.bincount(inv, weights=(v - mean) / n, minlength=k)
+            u = np.bincount(inv, weights=(v - mean) * (1.0 / n if a_j is None else a_j), minlength=k)
             se, df = math.sqrt(k / (k - 1) * float(np.sum(u**2))), k - 1
         else:
             se, df = float(v.std(ddof=1)) / math.sqrt(n), n - 1

@@ -214,7 +214,8 @@ def t_half_width(weights, n_h, sds, confidence: float, sides: str = "two") -> tu
     return stats.t.ppf(q, df) * se, df
 
 
-def cluster_t_half_width(weights, values, days, confidence: float, sides: str = "two") -> tuple[float, float]:
+def cluster_t_half_width(weights, values, days, confidence: float, sides: str = "two", *,
+                         shares=None) -> tuple[float, float]:
     """Student-t half-width with the day-level (ultimate cluster) variance of the stratified mean.
 
     ``values[h]`` are stratum h's results and ``days[h]`` the field day (an integer
@@ -223,6 +224,8 @@ def cluster_t_half_width(weights, values, days, confidence: float, sides: str = 
     ``v = k / (k - 1) sum_i u_i^2`` with ``k`` days, ``df = k - 1`` (Taylor
     linearisation with days as primary units; Cochran 1977 ch. 10 and 11; approximate).
     With equal visits per day and one stratum it is the t interval on the day means.
+    ``shares[h]`` (each value's share of its stratum mean, adding up to 1) replace
+    ``1 / n_h`` when the days were drawn with unequal probabilities (Hajek weights).
     """
     from scipy import stats
 
@@ -232,12 +235,13 @@ def cluster_t_half_width(weights, values, days, confidence: float, sides: str = 
     if k < 2:
         raise ValueError("the t interval on field days needs results from at least 2 days")
     u = np.zeros(k)
-    for w, y, d in zip(weights, values, days):
+    for h, (w, y, d) in enumerate(zip(weights, values, days)):
         y = np.asarray(y, float)
         if y.size == 0:
             continue
+        a_j = np.full(y.size, 1.0 / y.size) if shares is None else np.asarray(shares[h], float)
         idx = np.searchsorted(labels, np.asarray(d))
-        np.add.at(u, idx, w / y.size * (y - y.mean()))
+        np.add.at(u, idx, w * a_j * (y - float(np.dot(a_j, y))))
     v = k / (k - 1) * float(np.sum(u**2))
     q = 1 - a / 2 if sides == "two" else 1 - a
     df = float(k - 1)
