@@ -22,9 +22,10 @@ What is read
   ends (the rows after it would be read as one cell); results that are not finite
   or larger than :data:`MAX_RESULT` in absolute value; ``sampled_at`` outside the
   years :data:`SAMPLED_YEARS` (with ``strict=False`` these rows are flagged instead).
-- Results: numbers; ``<10`` (below the detection limit: left-censored, enters at
-  the limit) and ``>2419.6`` (above the method's upper limit: right-censored,
-  enters at the limit), also written as qualifier ``<`` / ``>`` with the number in
+- Results: numbers; ``<10`` (below the detection limit: left-censored) and
+  ``>2419.6`` (above the method's upper limit: right-censored), reported at the
+  limit with the side in ``StratumResults.censored``; the assessment enters each as
+  the interval of values it may have (``stats.assessment``), also written as qualifier ``<`` / ``>`` with the number in
   ``result``; ``ND`` (not detected, no limit: left out and reported); empty, ``NA``
   or ``-`` (not sampled). Anything else is unreadable.
 - A site visited but not sampled: leave ``result`` empty and write the reason in
@@ -825,11 +826,11 @@ def _per_stratum(manifest: dict, names: list[str], usable: list[Record], statist
         left = [r.row for r in recs if r.censored == "left"]
         right = [r.row for r in recs if r.censored == "right"]
         if left:
-            flags.append(Flag("censored_left", f"{st}: {len(left)} result(s) below the detection limit ('<'): they "
-                              "enter at the limit, which can only raise the estimate", tuple(left), st, "info"))
+            flags.append(Flag("censored_left", f"{st}: {len(left)} result(s) below the detection limit ('<'): each "
+                              "enters the bounds as the interval from the range's lower end to the limit", tuple(left), st, "info"))
         if right:
             flags.append(Flag("censored_right", f"{st}: {len(right)} result(s) above the method's upper limit ('>'): "
-                              "they enter at the limit, which can only lower the estimate", tuple(right), st, "info"))
+                              "each enters the bounds as the interval from the limit to the range's upper end", tuple(right), st, "info"))
         out.append(StratumResults(
             name=st, values=tuple(float(v) for v in vals), rows=tuple(r.row for r in recs),
             censored=tuple(r.censored for r in recs), n_primary_planned=int(planned.get(st, 0) or 0),

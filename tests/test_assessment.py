@@ -20,6 +20,7 @@ from geosample.stats.decisions import adjust_pvalues
 
 sys.path.insert(0, str(Path(__file__).parent))
 
+from fixtures_assess import at_least_nominal  # noqa: E402
 from fixtures_assess import at_least_nominal as _at_least_nominal  # noqa: E402
 from fixtures_assess import fake_manifest, fake_results  # noqa: E402
 
@@ -199,3 +200,61 @@ def test_bernstein_with_a_single_result_is_never_narrower_than_the_declared_rang
     a = assess(fake_results(vals), fake_manifest(range=200, bound="bernstein", extra_size="sd = 30"))
     assert a.bound == "bernstein" and any("Bernstein" in n and "Reed bay" in n for n in a.notes)
     assert a.interval.high - a.interval.low >= 0.2 * 200  # Reed bay (weight 0.2) spans its range
+
+
+# --------------------------------------------------------------------------- censored values as intervals
+# ../shared/CHECKS.md "Censored values" (Helsel 2005, 2006): "<10" lies in [lower end of the range, 10] and ">150"
+# in [150, upper end]; for a bound on the mean each takes the end least favourable to the claim being made.
+CENS_VALS = {"North basin": [10, 10, 25, 40, 10, 33], "South basin": [88, 95, 150, 79], "Reed bay": [120, 131, 115]}
+CENS = {"North basin": ("left", "left", "", "", "left", ""), "South basin": ("", "", "right", ""),
+        "Reed bay": ("", "", "")}
+
+
+def _at(end: str) -> dict:
+    """The same samples with every censored value at one end of its interval (range 0..200)."""
+    out = {}
+    for k, v in CENS_VALS.items():
+        out[k] = [(0.0 if end == "low" else x) if c == "left" else ((x if end == "low" else 200.0) if c == "right"
+                  else x) for x, c in zip(v, CENS[k])]
+    return out
+
+
+@pytest.mark.parametrize("bound", ["chebyshev", "cantelli", "hoeffding", "bernstein", "betting", "t"])
+@pytest.mark.parametrize("with_days", [False, True])
+def test_censored_values_never_give_a_narrower_interval(bound, with_days):
+    kw = dict(PLANS.get(bound, {}))
+    if bound == "t":
+        kw["extra_size"] = "sd = 30"
+    m = fake_manifest(range=200, bound=bound, criterion=126, **kw)
+    days = {k: tuple(f"d{i % 3}" for i in range(len(v))) for k, v in CENS_VALS.items()} if with_days else None
+    a = assess(fake_results(CENS_VALS, censored=CENS, days=days), m)
+    lo = assess(fake_results(_at("low"), days=days), m)
+    hi = assess(fake_results(_at("high"), days=days), m)
+    limits = assess(fake_results(CENS_VALS, days=days), m)
+    assert a.interval.low <= lo.interval.low + 1e-9 and a.interval.high >= hi.interval.high - 1e-9
+    assert a.interval.low <= limits.interval.low + 1e-9 and a.interval.high >= limits.interval.high - 1e-9
+    assert "censored" in a.statement and "Helsel" in a.statement
+
+
+def test_censoring_width_cost_is_stated():
+    m = fake_manifest(range=200, bound="hoeffding", criterion=126)
+    a = assess(fake_results(CENS_VALS, censored=CENS), m)
+    limits = assess(fake_results(CENS_VALS), m)
+    cost = (a.interval.high - a.interval.low) - (limits.interval.high - limits.interval.low)
+    assert cost > 0 and f"{cost:.3g} units wider" in a.statement
+
+
+@pytest.mark.parametrize("bound", ["betting", "bernstein", "hoeffding"])
+def test_censored_intervals_cover_at_least_nominally(bound):
+    # results below a detection limit of 30 reported as "<30" (a third of a skewed population), range 0..200
+    rng = np.random.default_rng(41)
+    m = fake_manifest(strata=(("Whole lake", 1.0),), range=200, bound=bound, criterion=126,
+                      extra_size="sd = 40" if bound == "bernstein" else "")
+    reps, hits = 200, 0
+    for _ in range(reps):
+        y = 200 * rng.beta(1.5, 4, size=25)
+        cens = tuple("left" if v < 30 else "" for v in y)
+        rep = [30.0 if c else v for v, c in zip(y, cens)]
+        a = assess(fake_results({"Whole lake": rep}, censored={"Whole lake": cens}), m)
+        hits += a.interval.low <= 200 * 1.5 / 5.5 <= a.interval.high
+    assert at_least_nominal(hits / reps, 0.95, reps), f"{bound}: {hits / reps:.3f}"

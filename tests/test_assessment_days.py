@@ -232,3 +232,15 @@ def test_weighted_estimate_is_unbiased_and_the_bounds_cover_with_unequal_day_pro
     for bound, h in hits.items():
         if bound != "t":
             assert at_least_nominal(h / reps, 0.9, reps), (bound, h / reps)
+
+
+def test_variance_components_by_hand():
+    # one stratum, 3 days of 2: day means 10, 20, 30; within-day deviations +-1 (Cochran 1977 ch. 10)
+    vals = {"Whole lake": [9, 11, 19, 21, 29, 31]}
+    days = {"Whole lake": ("1", "1", "2", "2", "3", "3")}
+    a = assess(fake_results(vals, days=days), fake_manifest(strata=(("Whole lake", 1.0),), range=200,
+                                                            bound="hoeffding"))
+    s_w = math.sqrt(6 * 1.0 / 3)  # sum of squares 6, 3 degrees of freedom
+    s_b = math.sqrt(100.0 - s_w**2 / 2)  # variance of the day means 100, minus S_w^2 / m
+    assert a.sd_within_day == pytest.approx(s_w) and a.sd_between_days == pytest.approx(s_b)
+    assert a.as_dict()["variance_components"]["sd_within_day"] == pytest.approx(s_w)

@@ -135,3 +135,19 @@ def test_betting_pvalue_is_one_over_the_largest_capital():
     lc = betting_log_capital(x, np.array([0.5]), prpl_bets(x, 0.05), theta=0.5, c=0.5)
     assert p == pytest.approx(min(1.0, float(np.exp(-lc.max()))))
     assert p < 0.05 and betting_pvalue(x, float(x.mean()), alpha=0.05) > 0.05
+
+
+def test_censored_betting_bounds_hold_every_value_the_censored_results_may_take():
+    # K+ on the lowest possible values and K- on the highest (bets from the reported values) can only reject
+    # fewer means than the true values would: the interval holds [low(x_true), high(x_true)] for any x_true in the box
+    from geosample.stats.betting import betting_bounds
+
+    rng = np.random.default_rng(17)
+    x = rng.beta(2, 5, size=120)
+    cens = x < 0.15
+    rep = np.where(cens, 0.15, x)  # reported "<0.15"
+    lo, hi = betting_bounds(rep, alpha=0.05, x_low=np.where(cens, 0.0, rep), x_high=rep)
+    for _ in range(20):
+        truth = np.where(cens, rng.uniform(0, 0.15, size=x.size), rep)
+        t_lo, t_hi = betting_bounds(rep, alpha=0.05, x_low=truth, x_high=truth)  # same bets, true values
+        assert lo <= t_lo and hi >= t_hi

@@ -283,6 +283,9 @@ def test_next_plan_round_trips_and_validates(design, tmp_path, capsys):
     assert data["area"]["water"] == "../layers/mirrow.geojson"
     plan = load_plan(nxt)  # the project's own validation accepts it
     assert plan.settings["draw"]["seed"] is None
+    # the variance components observed (the design puts several primaries on each of 10 field days)
+    assert data["size"]["sd_within_day"] > 0 and data["size"]["sd_between_days"] >= 0
+    assert plan.settings["size"]["sd_within_day"] == data["size"]["sd_within_day"]
     # refuses to overwrite; --overwrite replaces
     code, out, err = run(["assess", str(folder), str(res), "--next-plan", str(nxt)], capsys)
     assert code == 2 and "--overwrite" in err

@@ -156,7 +156,9 @@ def next_plan_settings(assessment: Any, manifest: dict, *, plan_path: str | Path
       units for a geometric mean) and the ``cost`` used, keeping its ``range``;
       ``tolerance`` or ``n`` stay as planned, so the plan sizes the total again; for
       chebyshev and cantelli (whose sizing would take the sds as known) ``n`` is set to
-      the total found with the declared ranges alone.
+      the total found with the declared ranges alone. ``sd_between_days`` and
+      ``sd_within_day`` become the variance components observed (when the results show
+      both: some field day with two results of a stratum, at least two days).
     - ``[draw]``: no ``seed`` or ``seed_text``, so a fresh seed is drawn and recorded.
     - ``[time]``: ``start``, ``end`` and ``skip`` move one year on (check them).
     - ``[area]``: paths are rewritten relative to the new plan file.
@@ -196,6 +198,14 @@ def next_plan_settings(assessment: Any, manifest: dict, *, plan_path: str | Path
             # the plan's sizing would take these sds as known for chebyshev/cantelli; fix the total found with
             # the declared ranges alone, so the guarantee does not rest on last season's sds
             size["n"] = int(realloc.total)
+    # the variance components observed this season (between-day and within-day sds), which the plan sizes field
+    # days and visits per day from; they go together, and not both 0
+    sb, sw = getattr(assessment, "sd_between_days", None), getattr(assessment, "sd_within_day", None)
+    size_keys = SCHEMA.get("size", {}) if SCHEMA is not None else {}
+    if (sb is not None and sw is not None and (sb > 0 or sw > 0) and "sd_between_days" in size_keys
+            and "sd_within_day" in size_keys):
+        size["sd_between_days"] = _sig(sb)
+        size["sd_within_day"] = _sig(sw)
     # area paths relative to the new plan
     area = settings.get("area", {})
     inputs = manifest.get("inputs", {}) or {}

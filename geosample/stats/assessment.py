@@ -45,7 +45,7 @@ from .intervals import (
 )
 from .reallocation import Reallocation, reallocate
 
-__all__ = ["StratumEstimate", "Sequential", "Assessment", "assess", "stratified_interval"]
+__all__ = ["StratumEstimate", "Sequential", "Assessment", "assess", "stratified_interval", "variance_components"]
 
 
 @dataclass(frozen=True)
@@ -117,6 +117,8 @@ class Assessment:
     notes: tuple[str, ...] = ()
     range_void: bool = False
     substitutions: tuple[Any, ...] = ()  # results.Results.substitutions: which reserve replaced which primary, why
+    sd_between_days: float | None = None
+    sd_within_day: float | None = None
 
     @property
     def approximate(self) -> bool:
@@ -153,6 +155,8 @@ class Assessment:
             "flags": [_flag_dict(f) for f in self.flags],
             "notes": list(self.notes), "range_void": self.range_void, "approximate": self.approximate,
             "substitutions": [s.as_dict() if hasattr(s, "as_dict") else dict(s) for s in self.substitutions],
+            "variance_components": {"sd_between_days": self.sd_between_days, "sd_within_day": self.sd_within_day,
+                                    "scale": "log10" if back else "original"},
         }
 
 
@@ -188,6 +192,8 @@ class _Stratum:
     inv_p: np.ndarray | None = None  # 1 / the inclusion probability of each value's field day
     tstrat: np.ndarray | None = None  # temporal stratum (index into tweights) of each value's field day
     tweights: tuple[float, ...] = ()  # temporal strata's shares of the season's allowed days, K_s / K
+    y_low: np.ndarray | None = None  # censored values: each value's lowest possible value (else y)
+    y_high: np.ndarray | None = None  # and its highest (+inf above an undeclared range)
 
 
 def _shares(s: _Stratum) -> np.ndarray:
@@ -318,8 +324,11 @@ def _unit_strata(strata: Sequence[_Stratum]) -> list[_Stratum]:
             continue
         u, first, inv = np.unique(s.day, return_index=True, return_inverse=True)
         means = np.bincount(inv, weights=s.y) / np.bincount(inv)
+        cnt = np.bincount(inv)
         out.append(replace(s, y=means, day=u, inv_p=None if s.inv_p is None else s.inv_p[first],
-                           tstrat=None if s.tstrat is None else s.tstrat[first]))
+                           tstrat=None if s.tstrat is None else s.tstrat[first],
+                           y_low=None if s.y_low is None else np.bincount(inv, weights=s.y_low) / cnt,
+                           y_high=None if s.y_high is None else np.bincount(inv, weights=s.y_high) / cnt))
     return out
 
 
@@ -339,7 +348,13 @@ def _stratum_inputs(results: Any, manifest: dict, schedule_rows: Sequence[dict] 
         lower, L = declared_support(settings, name)
         cl = sum(1 for c in (sr.censored if sr else ()) if c == "left")
         cr = sum(1 for c in (sr.censored if sr else ()) if c == "right")
-        out.append(_Stratum(name, float(fs["weight"]), y, lower, L, planned.get(name), cl, cr))
+        st = _Stratum(name, float(fs["weight"]), y, lower, L, planned.get(name), cl, cr)
+        if cl or cr:
+            cens = np.array([{"left": -1, "right": 1}.get(c, 0) for c in sr.censored], dtype=int)
+            upper = lower + L if L is not None else math.inf
+            st = replace(st, y_low=np.where(cens < 0, np.minimum(lower, y), y),
+                         y_high=np.where(cens > 0, np.maximum(upper, y), y))
+        out.append(st)
     labels = _day_labels(results, schedule_rows)
     if labels is None:
         return out, False
@@ -488,6 +503,121 @@ def stratified_interval(bound: str, values: Sequence[Sequence[float]], weights: 
     if bound in ("bernstein", "betting") and _clustered(strata):
         strata = _unit_strata(strata)
     return _interval(bound, strata, confidence, sides, direction)[0]
+
+
+def variance_components(strata: Sequence[_Stratum]) -> tuple[float | None, float | None]:
+    """Observed between-day and within-day sds (analysis scale) from results with their field days.
+
+    Within day: the pooled sd of results around their day's mean in the same stratum,
+    ``S_w^2 = sum (y - ybar_hi)^2 / sum (m_hi - 1)``. Between days: from the day means of
+    the results' deviations from their stratum means, ``s_1^2`` (n - 1 denominator),
+    ``S_b^2 = max(0, s_1^2 - S_w^2 / mbar)`` with ``mbar`` results per day (Cochran 1977,
+    ch. 10: the variance of day means holds ``S_w^2 / m`` of within-day variation).
+    None where the results cannot show it (no day with two results of a stratum; one day).
+    """
+    if not strata or any(s.day is None for s in strata):
+        return None, None
+    ss_w, df_w = 0.0, 0
+    dev, day = [], []
+    for s in strata:
+        if s.y.size == 0:
+            continue
+        for d in np.unique(s.day):
+            yi = s.y[s.day == d]
+            ss_w += float(np.sum((yi - yi.mean()) ** 2))
+            df_w += yi.size - 1
+        dev.append(s.y - s.y.mean())
+        day.append(s.day)
+    s_w = math.sqrt(ss_w / df_w) if df_w > 0 else None
+    if not dev:
+        return None, s_w
+    dev_a, day_a = np.concatenate(dev), np.concatenate(day)
+    labels, inv = np.unique(day_a, return_inverse=True)
+    if labels.size < 2:
+        return None, s_w
+    means = np.bincount(inv, weights=dev_a) / np.bincount(inv)
+    s1 = float(np.var(means, ddof=1))
+    mbar = dev_a.size / labels.size
+    s_b = math.sqrt(max(0.0, s1 - (s_w**2 / mbar if s_w is not None else 0.0)))
+    return s_b, s_w
+
+
+def _ends(strata: Sequence[_Stratum], side: str) -> list[_Stratum]:
+    """The strata with every censored value at its lowest (side = "low") or highest possible value."""
+    out = []
+    for s in strata:
+        e = s.y_low if side == "low" else s.y_high
+        out.append(s if e is None else replace(s, y=e, y_low=None, y_high=None))
+    return out
+
+
+def _spread_max(s: _Stratum) -> float:
+    """An upper bound on the sample sd over every value the censored results may take.
+
+    sum (y - ybar)^2 = min_c sum (y - c)^2 <= sum_j max((lo_j - c)^2, (hi_j - c)^2) for any c
+    (here the mean of the midpoints), so the bound holds for the true values.
+    """
+    if s.y.size < 2:
+        return 0.0
+    lo = s.y if s.y_low is None else s.y_low
+    hi = s.y if s.y_high is None else s.y_high
+    if not np.all(np.isfinite(hi)):
+        return math.inf
+    c = float(np.mean((lo + hi) / 2))
+    return math.sqrt(float(np.sum(np.maximum((lo - c) ** 2, (hi - c) ** 2))) / (s.y.size - 1))
+
+
+def _censored_interval(bound: str, strata: list[_Stratum], confidence: float, sides: str, direction: str
+                       ) -> Interval:
+    """The plan's bound with censored results entered as intervals, each end least favourable to the claim.
+
+    Chebyshev, Cantelli, Hoeffding: the low end from every value at its lowest, the high end
+    from every value at its highest (the end points move with each value). Empirical
+    Bernstein and t: the same means with the half-width at an upper bound on the sd over
+    every possible value (:func:`_spread_max`; for t an approximation). Betting: K+ on the
+    lowest values, K- on the highest (:func:`betting.betting_bounds`). Never narrower than
+    the bound on all values at their least favourable end.
+    """
+    low_s, high_s = _ends(strata, "low"), _ends(strata, "high")
+    a_lo = _interval(bound, low_s, confidence, sides, direction)[0]
+    a_hi = _interval(bound, high_s, confidence, sides, direction)[0]
+    low, high = a_lo.low, a_hi.high
+    w = np.array([s.weight for s in strata])
+    a = 1 - confidence
+    H = len(strata)
+    if bound == "bernstein":
+        k = 1 if sides == "one" else 2
+        d = sum(s.weight * bernstein_half_width(s.y.size, _spread_max(s), s.L, a / (k * H)) for s in strata)
+        low = min(low, float(stratified_mean(w, [_mean(s) for s in low_s])) - d)
+        high = max(high, float(stratified_mean(w, [_mean(s) for s in high_s])) + d)
+    elif bound == "t":
+        sds = [_spread_max(s) for s in strata]
+        worst = [replace(s, y=(s.y - s.y.mean()) * (sd / s.y.std(ddof=1)) + s.y.mean())
+                 if s.y.size > 1 and s.y.std(ddof=1) > 0 and math.isfinite(sd) else s for s, sd in zip(strata, sds)]
+        d = _interval("t", worst, confidence, sides, direction)[0]
+        if d.half_width is not None:
+            low = min(low, float(stratified_mean(w, [_mean(s) for s in low_s])) - d.half_width)
+            high = max(high, float(stratified_mean(w, [_mean(s) for s in high_s])) + d.half_width)
+        if any(not math.isfinite(sd) for sd in sds):
+            high = math.inf
+    elif bound == "betting":
+        lo = hi = 0.0
+        for s in strata:
+            x = (s.y - s.lower) / s.L
+            xl = (s.y if s.y_low is None else s.y_low) - s.lower
+            xh = (s.y if s.y_high is None else s.y_high) - s.lower
+            l01, h01 = betting_bounds(x, alpha=a / H, sides=sides, direction=direction, x_low=xl / s.L,
+                                      x_high=xh / s.L)
+            lo += s.weight * (s.lower + s.L * l01)
+            hi += s.weight * (s.lower + s.L * h01)
+        if _unequal(strata):
+            b = sum(s.weight * _composition_bias(s) for s in strata)
+            lo, hi = lo - b, hi + b
+        low, high = min(low, lo), max(high, hi)
+    if sides == "one":
+        low, high = (-math.inf, high) if direction == "below" else (low, math.inf)
+    est = float(stratified_mean(w, [_mean(s) for s in strata]))
+    return Interval(est, min(low, est), max(high, est), confidence, bound, sides, None, None, ())
 
 
 def _void_interval(bound: str, strata: list[_Stratum], confidence: float, sides: str, direction: str
@@ -695,6 +825,11 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm", schedule_rows:
         return _interval(bound, group, confidence, sides, direction, path=path)
 
     iv, _, seqs = shown(strata, path=a_crit is not None)
+    censored = any(s.y_low is not None for s in strata) and not (range_void and bound != "t")
+    if censored:
+        at_limits = iv
+        iv = _censored_interval(bound, strata, confidence, sides, direction)
+        seqs = []
     # a mean of concentrations or counts is not negative: the interval's lower end is cut at the weighted lower
     # end of the range (0 unless size.lower says otherwise); the upper end is left alone, since the plan
     # declares the range's length, not where it ends (betting works inside the range by construction)
@@ -707,6 +842,26 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm", schedule_rows:
             notes.append(f"the interval's lower end is cut at {floor:g}: the mean cannot be lower (results are not "
                          "below the lower end of the declared range)")
         iv = clipped
+    if censored:
+        if clip:
+            at_limits = _clip(at_limits, floor, math.inf)
+        n_l, n_r = sum(s.censored_left for s in raw), sum(s.censored_right for s in raw)
+
+        def width(x: Interval) -> float:
+            if sides == "two":
+                return x.high - x.low
+            return (x.high - x.estimate) if direction == "below" else (x.estimate - x.low)
+
+        cost = width(iv) - width(at_limits)
+        what = ", ".join(t for t in (f"{n_l} below a detection limit" if n_l else "",
+                                     f"{n_r} above an upper reporting limit" if n_r else "") if t)
+        censor_text = (f"{n_l + n_r} censored result(s) ({what}) enter each bound as an interval of the values they "
+                       "may have, the end least favourable to the claim taken (Helsel 2006): the "
+                       + ("interval" if sides == "two" else "bound") + f" is {cost:.3g} "
+                       + ("units " if statistic == "mean" else "log10 units ")
+                       + ("wider" if sides == "two" else "further from the estimate")
+                       + " than with the results entered at their limits.")
+        notes.append(censor_text)
     notes += list(iv.notes)
     decision = decide(iv.low, iv.high, a_crit, sides, direction)
     if range_void and decision is not None:
@@ -717,15 +872,28 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm", schedule_rows:
     for s, r in zip(strata, raw):
         sd = float(r.y.std(ddof=1)) if r.y.size > 1 else None
         one = shown([replace(s, weight=1.0, censored_left=0, censored_right=0)])[0]
+        if censored and s.y_low is not None:
+            one = _censored_interval(bound, [replace(s, weight=1.0)], confidence, sides, direction)
         if clip:
             one = _clip(one, s.lower, math.inf)
         p = None
         if a_crit is not None and not (range_void and (s.name in void_strata or no_range)):
             c1 = _share_matrix([s])
-            p = stratum_pvalue(bound, s.y, a_crit, L=s.L, lower=s.lower, confidence=confidence, sides=sides,
-                               direction=direction, counts=None if c1 is None else c1[:, 0],
-                               days=s.day if (_clustered([s]) or _unequal([s])) else None,
-                               shares=_shares(s) if (_unequal([s]) and bound not in ("bernstein", "betting")) else None)
+
+            def pv(values: np.ndarray) -> float:
+                return stratum_pvalue(bound, values, a_crit, L=s.L, lower=s.lower, confidence=confidence, sides=sides,
+                                      direction=direction, counts=None if c1 is None else c1[:, 0],
+                                      days=s.day if (_clustered([s]) or _unequal([s])) else None,
+                                      shares=_shares(s) if (_unequal([s]) and bound not in ("bernstein", "betting"))
+                                      else None)
+            if censored and s.y_low is not None:
+                # censored results: the largest p-value over the values they may take (1 when the criterion lies
+                # between the stratum's lowest and highest possible means; approximate for t, bernstein, betting)
+                lo_m, hi_m = _mean(replace(s, y=s.y_low)), _mean(replace(s, y=s.y_high))
+                p = 1.0 if lo_m <= a_crit <= hi_m else max(pv(s.y_low), pv(np.minimum(s.y_high, s.lower + (s.L or 0))
+                                                                         if s.L else s.y_high))
+            else:
+                p = pv(s.y)
             pvals.append(p)
         per.append(StratumEstimate(s.name, s.weight, int(r.y.size), s.n_planned, _mean(s), sd, one.low,
                                    one.high, s.censored_left, s.censored_right, p))
@@ -771,15 +939,10 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm", schedule_rows:
     text = statement(statistic=statistic, parameter=survey.get("parameter", ""), frame_label=label, season=season,
                      figure=figure, confidence=confidence, bound=bound, sides=sides, direction=direction,
                      void=void_reason)
+    if censored:
+        text += " " + censor_text[0].upper() + censor_text[1:]
     dtext = decision_statement(decision, criterion=criterion, confidence=confidence, statistic=statistic,
                                sides=sides, units=units, direction=direction, void=void_reason)
-    cens = sum(s.censored_left for s in strata), sum(s.censored_right for s in strata)
-    if cens[0]:
-        notes.append(f"{cens[0]} result(s) below a detection limit enter at the limit, which can only raise the "
-                     "estimate: a 'below' decision stays sound, an 'above' decision may be an artefact of the limit")
-    if cens[1]:
-        notes.append(f"{cens[1]} result(s) above the method's upper limit enter at the limit, which can only lower "
-                     "the estimate: an 'above' decision stays sound, a 'below' decision may be an artefact of the limit")
     if geo:
         notes.append("the geometric mean is computed on log10 values; tolerance, range and sds are in log10 units")
     # next round
@@ -790,6 +953,7 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm", schedule_rows:
     except ImportError:
         notes.append("reallocation unavailable: geosample.stats.sizing is not installed")
     alloc = manifest.get("allocation") or {}
+    components = variance_components(raw)
     return Assessment(
         statistic=statistic, parameter=survey.get("parameter", ""), units=units, frame_label=label, season=season,
         estimate=float(est), low=None if low is None else float(low), high=None if high is None else float(high),
@@ -799,4 +963,5 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm", schedule_rows:
         strata=tuple(per), adjust=adjust, sequential=seq, next_allocation=realloc,
         flags=tuple(getattr(results, "flags", ())), notes=tuple(notes), range_void=range_void,
         substitutions=tuple(getattr(results, "substitutions", ())),
+        sd_between_days=components[0], sd_within_day=components[1],
     )

@@ -153,20 +153,29 @@ def _side_end(x, lam, c: float, sign: int, log_weight: float, thresh: float, ite
     return excl  # a rejected point: the reported interval can only be wider than the exact one
 
 
-def betting_bounds(x, *, alpha: float, sides: str = "two", direction: str = "below", c: float = 0.5
-                   ) -> tuple[float, float]:
+def betting_bounds(x, *, alpha: float, sides: str = "two", direction: str = "below", c: float = 0.5,
+                   x_low=None, x_high=None) -> tuple[float, float]:
     """End points (on [0, 1]) of the betting confidence sequence after all of ``x`` (running intersection).
 
     Exact up to bisection (52 halvings), no grid; see :func:`betting_sequence`.
+
+    Censored values: ``x_low`` / ``x_high`` hold each value's lowest / highest possible
+    value (equal to ``x`` where it is known exactly). The bets come from ``x`` (what was
+    reported, so they stay predictable); the upward bettor K+ is evaluated on ``x_low``
+    and K- on ``x_high``. Every factor of K+ grows with the value and every factor of K-
+    falls, so these are lower bounds on the capital the true values would give: a mean
+    rejected here is rejected by the true values, and the interval is valid.
     """
     x = np.asarray(x, float)
     if x.size == 0:
         return 0.0, 1.0
+    xl = x if x_low is None else np.asarray(x_low, float)
+    xh = x if x_high is None else np.asarray(x_high, float)
     theta = _theta(sides, direction)
     lam = prpl_bets(x, alpha, sides)
     thresh = math.log(1.0 / alpha)
-    low = _side_end(x, lam, c, +1, math.log(theta), thresh) if theta > 0 else 0.0
-    high = _side_end(x, lam, c, -1, math.log(1 - theta), thresh) if theta < 1 else 1.0
+    low = _side_end(xl, lam, c, +1, math.log(theta), thresh) if theta > 0 else 0.0
+    high = _side_end(xh, lam, c, -1, math.log(1 - theta), thresh) if theta < 1 else 1.0
     if low > high:  # every mean rejected (probability at most alpha): report the point it closed on
         low = high = 0.5 * (low + high)
     return low, high
