@@ -283,9 +283,8 @@ def test_next_plan_round_trips_and_validates(design, tmp_path, capsys):
     assert data["area"]["water"] == "../layers/mirrow.geojson"
     plan = load_plan(nxt)  # the project's own validation accepts it
     assert plan.settings["draw"]["seed"] is None
-    # the variance components observed (the design puts several primaries on each of 10 field days)
-    assert data["size"]["sd_within_day"] > 0 and data["size"]["sd_between_days"] >= 0
-    assert plan.settings["size"]["sd_within_day"] == data["size"]["sd_within_day"]
+    # no field day has two results of one stratum here, so the within-day sd is not shown: no components written
+    assert "sd_within_day" not in data["size"] and "sd_between_days" not in data["size"]
     # refuses to overwrite; --overwrite replaces
     code, out, err = run(["assess", str(folder), str(res), "--next-plan", str(nxt)], capsys)
     assert code == 2 and "--overwrite" in err
@@ -337,3 +336,20 @@ def test_tomli_w_is_not_a_dependency():
 def test_toml_key_with_a_trailing_newline_is_quoted():
     # found by hypothesis: a regex '$' also matches before a final newline
     assert tomllib.loads(toml_dumps({"0\n": {"k\n": 1}})) == {"0\n": {"k\n": 1}}
+
+
+def test_next_plan_carries_the_observed_variance_components(tmp_path, capsys):
+    from geosample.plan import load_plan
+
+    folder = tmp_path / "design"
+    manifest, rows = write_design_folder(folder, n=(30, 20, 15), range=200, criterion=126, bound="t",
+                                         extra_size="sd = 30")
+    res = write_csv(tmp_path / "r.csv", fill(rows, all_primaries(rows)))
+    nxt = tmp_path / "next.toml"
+    code, out, err = run(["assess", str(folder), str(res), "--json", "--next-plan", str(nxt)], capsys)
+    assert code == 0, err
+    comp = json.loads(out)["variance_components"]
+    data = tomllib.loads(nxt.read_text(encoding="utf-8"))
+    assert data["size"]["sd_within_day"] == pytest.approx(comp["sd_within_day"], rel=1e-3)
+    assert data["size"]["sd_between_days"] == pytest.approx(comp["sd_between_days"], rel=1e-3, abs=1e-9)
+    assert load_plan(nxt).settings["size"]["sd_within_day"] > 0
