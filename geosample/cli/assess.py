@@ -100,6 +100,10 @@ def summary_text(a) -> str:
         lines.append(f"NOTE: the guarantee of the planned {a.planned_bound} bound does not hold (results outside the "
                      "declared range): no decision; the interval shown is approximate and no basis for a decision.")
     lines.append(f"Sequence: {a.sequential.note}.")
+    if a.sd_between_days is not None or a.sd_within_day is not None:
+        unit = " (log10)" if a.statistic == "geomean" else ""
+        lines.append(f"Variance components{unit}: between field days sd {_f(a.sd_between_days)}, within a day sd "
+                     f"{_f(a.sd_within_day)}.")
     lines += ["", f"Strata (all {len(a.strata)} compared with the criterion; p adjusted by {a.adjust}):"]
     head = ("stratum", "n", "planned", "mean", "sd (log10)" if geo else "sd", "interval", "p", "p adj", "comparison")
     body = []
