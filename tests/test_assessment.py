@@ -89,6 +89,14 @@ def test_the_interval_shown_for_out_of_range_data_is_never_narrower_than_the_pla
     assert a.interval.low <= planned.interval.low and a.interval.high >= planned.interval.high
 
 
+def test_the_approximate_interval_is_not_below_the_lower_end_when_no_result_is():
+    # results spread more than the range but none below 0: a mean of counts is still not negative
+    vals = {k: list(v) for k, v in IN_RANGE.items()}
+    vals["North basin"][-1] = 260.0
+    a = assess(fake_results(vals, range_exceeded=("North basin",)), fake_manifest(range=200, bound="chebyshev"))
+    assert a.decision == "no decision" and a.interval.low >= 0.0
+
+
 def test_no_range_for_a_range_bound_gives_no_decision():
     m = fake_manifest(range=200, bound="hoeffding")
     m["settings"]["size"]["range"] = None

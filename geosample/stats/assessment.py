@@ -833,7 +833,7 @@ def assess(results: Any, manifest: dict, *, adjust: str = "holm", schedule_rows:
     # a mean of concentrations or counts is not negative: the interval's lower end is cut at the weighted lower
     # end of the range (0 unless size.lower says otherwise); the upper end is left alone, since the plan
     # declares the range's length, not where it ends (betting works inside the range by construction)
-    clip = (bound in RANGE_BOUNDS and bound != "betting" and statistic == "mean" and not range_void
+    clip = (bound in RANGE_BOUNDS and bound != "betting" and statistic == "mean"
             and not set(getattr(results, "outside_support", ())))
     if clip:
         floor = float(np.dot([s.weight for s in strata], [s.lower for s in strata]))
