@@ -181,17 +181,23 @@ def _check_finite(gdf: Any, path: Path, what: str) -> None:
     import numpy as np
     import shapely
 
-    coords, index = shapely.get_coordinates(gdf.geometry.values, include_z=False, return_index=True)
-    bad = ~np.isfinite(coords).all(axis=1)
-    if not bad.any():
+    geoms = gdf.geometry.values
+    step = 20_000  # features per chunk: the coordinates of a regional layer are never copied all at once
+    for start in range(0, len(geoms), step):
+        coords, index = shapely.get_coordinates(geoms[start:start + step], include_z=False, return_index=True)
+        bad = ~np.isfinite(coords).all(axis=1)
+        if bad.any():
+            break
+    else:
         return
+    index = index + start
     features = sorted(set(int(i) for i in index[bad]))
     name_col = name_column(gdf.columns)
     labels = ", ".join(_feature_label(gdf, i, name_col) for i in features[:5])
     first = coords[bad][0]
     raise LayerError(
         f"{_plan_key(what)}: {str(path)!r} has {int(bad.sum())} vertex(es) with a coordinate that is not a number "
-        f"(NaN or infinite, e.g. ({first[0]:g}, {first[1]:g})) in {labels}. No repair can know where such a corner "
+        f"(NaN or infinite, e.g. ({first[0]:g}, {first[1]:g})) in {labels}. No repair can know where such a vertex "
         "belongs: correct or delete those vertices in the GIS and export the layer again.")
 
 

@@ -214,3 +214,17 @@ def test_features_without_geometry_are_dropped_with_a_warning(write_layer, lake_
     path = write_layer("lake.gpkg", gdf, layer="w")
     out = read_layer(path)
     assert len(out) == 1 and "without a geometry" in out.attrs["geosample_warnings"][0]
+
+
+def test_a_nan_vertex_past_the_first_chunk_is_found_and_named(tmp_path):
+    # the check reads coordinates in chunks of features (memory of a regional layer); the bad one is in the third
+    import geopandas
+    import shapely
+
+    from geosample.layers import _check_finite
+
+    geoms = [shapely.box(i, 0, i + 0.5, 1) for i in range(45_000)]
+    geoms[41_234] = shapely.Polygon([(0, 0), (1, 0), (1, float("nan")), (0, 1)])
+    gdf = geopandas.GeoDataFrame({"name": [f"Lake {i}" for i in range(45_000)]}, geometry=geoms)
+    with pytest.raises(LayerError, match=r"feature 41234 \(name = 'Lake 41234'\)"):
+        _check_finite(gdf, tmp_path / "lakes.gpkg", "water")
