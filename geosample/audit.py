@@ -26,9 +26,11 @@ from .errors import InputFileError
 from .model import Design
 
 __all__ = ["MANIFEST", "LIBRARIES", "write_manifest", "read_manifest", "verify", "Verification", "library_versions",
-           "sha256_file", "sites_digest", "manifest_data"]
+           "sha256_file", "sites_digest", "manifest_data", "listed_files", "folder_entries", "design_folder_problems"]
 
 MANIFEST = "manifest.json"
+#: A manifest larger than this is refused unread (a real one is tens of kilobytes).
+MAX_MANIFEST_BYTES = 20 * 2**20
 LIBRARIES = ("numpy", "scipy", "pandas", "shapely", "pyproj", "pyogrio", "geopandas", "networkx", "astral",
              "folium", "gpxpy", "jinja2")
 
@@ -39,6 +41,22 @@ def sha256_file(path: str | Path) -> str:
         for chunk in iter(lambda: fh.read(1 << 20), b""):
             h.update(chunk)
     return h.hexdigest()
+
+
+def _read_bounded(path: Path, limit: int) -> bytes:
+    """The bytes of a regular file of at most ``limit`` bytes (else InputFileError, never a hang)."""
+    import stat
+
+    try:
+        st = os.stat(path, follow_symlinks=False)
+    except OSError as exc:
+        raise InputFileError(f"{str(path)!r} cannot be read ({exc.strerror}).") from None
+    if not stat.S_ISREG(st.st_mode):
+        raise InputFileError(f"{str(path)!r} is not a regular file; a design folder holds only regular files.")
+    if st.st_size > limit:
+        raise InputFileError(f"{str(path)!r} is {st.st_size} bytes, more than the {limit} a design file may be.")
+    with open(path, "rb") as fh:
+        return fh.read(limit + 1)[:limit]
 
 
 def library_versions() -> dict[str, str]:
@@ -85,35 +103,33 @@ def sites_digest(rows: list[dict]) -> str:
     return hashlib.sha256(json.dumps(canon, separators=(",", ":")).encode()).hexdigest()
 
 
-def _relpath(path: Path, folder: Path) -> str:
-    try:
-        return Path(os.path.relpath(Path(path).resolve(), Path(folder).resolve())).as_posix()
-    except ValueError:  # another drive on Windows
-        return Path(path).resolve().as_posix()
+def manifest_data(design: Design, folder: Path, *, plan_sha256: str = "", plan_name: str | None = None,
+                  outputs: dict[str, Path] | None = None, bundle: dict | None = None) -> dict:
+    """The manifest of the design written in ``folder``, as a dict.
 
-
-def manifest_data(design: Design, folder: Path, *, final_folder: Path | None = None,
-                  plan_path: Path | None = None, plan_sha256: str = "",
-                  outputs: dict[str, Path] | None = None,
-                  input_locations: dict[str, Path] | None = None) -> dict:
-    """The manifest as a dict. Paths are stored relative to ``final_folder`` (where the design will live)."""
+    ``outputs`` maps each written file's name (POSIX path relative to ``folder``) to its
+    path; ``bundle`` says where the plan and inputs were copied in ``folder`` (see
+    :func:`geosample.workflow.run_plan`), None when they were not. Every path in the
+    manifest is relative to the design folder; none is absolute.
+    """
     from .export.table import schedule_rows
     from .version import __version__
 
-    where = Path(final_folder or folder)
+    folder = Path(folder)
     frame = design.frame
     crs = frame.crs
     epsg = crs.to_epsg() if hasattr(crs, "to_epsg") else None
-    locations = input_locations or {}
-    inputs = {
-        label: {"path": _relpath(Path(locations.get(label, info["path"])), where), "sha256": info["sha256"],
-                "as_written": info["path"]}
-        for label, info in sorted(design.inputs.items())
-    }
+    where = (bundle or {}).get("inputs", {})
+    inputs = {}
+    for label, info in sorted(design.inputs.items()):
+        copy = where.get(label) or {}
+        inputs[label] = {"path": copy.get("path"), "sha256": info["sha256"], "as_written": info["path"],
+                         "files": {name: sha256_file(folder / name) for name in copy.get("files", ())}}
+    plan_path = (bundle or {}).get("plan")
     data = {
         "format": "geosample-manifest/1",
         "geosample_version": __version__,
-        "plan": ({"path": _relpath(plan_path, where), "sha256": plan_sha256} if plan_path else None),
+        "plan": {"path": plan_path, "name": plan_name, "sha256": plan_sha256} if plan_sha256 else None,
         "inputs": inputs,
         "settings": design.settings,
         "seed": str(design.seed),
@@ -180,6 +196,82 @@ def read_manifest(folder: str | Path) -> dict:
     return data
 
 
+# --------------------------------------------------------------------------- what a design folder holds
+#: At most this many entries are listed in a design folder (a folder with more is not a design).
+MAX_ENTRIES = 20_000
+
+
+def listed_files(manifest: dict) -> dict[str, str | None]:
+    """Every file the manifest accounts for: POSIX path relative to the folder -> recorded SHA-256.
+
+    ``manifest.json`` itself maps to None (it cannot hold its own hash).
+    """
+    out: dict[str, str | None] = {MANIFEST: None}
+    for name, digest in (manifest.get("outputs") or {}).items():
+        out[str(name)] = digest
+    plan = manifest.get("plan") or {}
+    if isinstance(plan, dict) and plan.get("path"):
+        out[str(plan["path"])] = plan.get("sha256")
+    for info in (manifest.get("inputs") or {}).values():
+        if not isinstance(info, dict):
+            continue
+        if info.get("path"):
+            out[str(info["path"])] = info.get("sha256")
+        for name, digest in (info.get("files") or {}).items():
+            out[str(name)] = digest
+    return out
+
+
+def folder_entries(folder: str | Path) -> list[str]:
+    """Everything in ``folder``, as POSIX paths relative to it: files, links, other non-regular entries,
+    and empty folders (with a trailing ``/``). Links are listed, never followed."""
+    folder = Path(folder)
+    out: list[str] = []
+    for root, dirs, files in os.walk(folder, followlinks=False):
+        here = Path(root)
+        for d in list(dirs):
+            if (here / d).is_symlink():
+                out.append((here / d).relative_to(folder).as_posix())
+                dirs.remove(d)
+        if here != folder and not dirs and not files:
+            out.append(here.relative_to(folder).as_posix() + "/")
+        out.extend((here / f).relative_to(folder).as_posix() for f in files)
+        if len(out) > MAX_ENTRIES:
+            raise InputFileError(f"{str(folder)!r} holds more than {MAX_ENTRIES} files: it is not a design folder "
+                                 "written by 'geosample plan'.")
+    return sorted(out)
+
+
+def design_folder_problems(folder: str | Path) -> list[str]:
+    """Why ``folder`` is not a design folder that geosample may replace (empty list: it is one).
+
+    A folder may be replaced only when its ``manifest.json`` is a geosample manifest, every entry in
+    the folder is a regular file listed by that manifest, and every listed file still has the SHA-256
+    the manifest records (so results typed into ``schedule.csv``, or notes added, are never lost).
+    """
+    folder = Path(folder)
+    path = folder / MANIFEST
+    if path.is_symlink() or not path.is_file():
+        return [f"it has no {MANIFEST} (it is not a design folder written by 'geosample plan')"]
+    try:
+        manifest = json.loads(_read_bounded(path, MAX_MANIFEST_BYTES).decode("utf-8"))
+        listed = listed_files(manifest) if isinstance(manifest, dict) else {}
+    except (ValueError, UnicodeDecodeError, AttributeError, TypeError, InputFileError):
+        return [f"its {MANIFEST} is not a readable geosample manifest"]
+    if not str(manifest.get("format", "")).startswith("geosample-manifest/"):
+        return [f"its {MANIFEST} is not a geosample manifest"]
+    problems = []
+    for entry in folder_entries(folder):
+        p = folder / entry
+        if entry not in listed:
+            problems.append(f"{entry} is not part of the design")
+        elif p.is_symlink() or not p.is_file():
+            problems.append(f"{entry} is not a regular file")
+        elif listed[entry] is not None and sha256_file(p) != listed[entry]:
+            problems.append(f"{entry} was changed after the design was written")
+    return problems
+
+
 # --------------------------------------------------------------------------- verify
 @dataclass(frozen=True)
 class Verification:
@@ -239,6 +331,9 @@ def verify(folder: str | Path, *, progress: Any = None) -> Verification:
     # 1. inputs
     inputs = manifest.get("inputs", {})
     for label, info in inputs.items():
+        if not info.get("path"):
+            raise InputFileError(f"the input layers are not in {str(folder)!r} (it was written with "
+                                 "--no-bundle-inputs); verify checks a self-contained design folder.")
         p = (folder / info["path"]).resolve()
         if not p.exists():
             raise InputFileError(f"input {label} ({info['path']!r}, relative to {str(folder)!r}) is missing; "

@@ -86,17 +86,30 @@ def test_verify_fails_on_a_moved_site(design, capsys):
     assert rows[0]["site_id"] in err and "moved" in err
 
 
-def test_verify_fails_on_an_edited_input(demo_inputs, tmp_path, capsys):
+def test_verify_fails_on_an_edited_bundled_input(design, capsys):
+    copy = design.parent / "edited-input"
+    shutil.copytree(design, copy)
+    water = json.loads((copy / "inputs" / "water.geojson").read_text())
+    ring = water["features"][0]["geometry"]["coordinates"][0]
+    ring[1] = [ring[1][0] + 0.0005, ring[1][1]]  # nudge one shoreline vertex (about 40 m)
+    (copy / "inputs" / "water.geojson").write_text(json.dumps(water))
+    assert main(["verify", str(copy)]) == 1
+    assert "input water" in capsys.readouterr().err
+
+
+def test_inputs_are_bundled_by_default_and_edits_after_planning_do_not_matter(demo_inputs, tmp_path, capsys):
     inputs = tmp_path / "inputs"
     shutil.copytree(demo_inputs.parent, inputs)
     out = tmp_path / "design"
     assert main(["plan", str(inputs / "plan.toml"), "-o", str(out), "-q"]) == 0
-    water = json.loads((inputs / "water.geojson").read_text())
-    ring = water["features"][0]["geometry"]["coordinates"][0]
-    ring[1] = [ring[1][0] + 0.0005, ring[1][1]]  # nudge one shoreline vertex (about 40 m)
-    (inputs / "water.geojson").write_text(json.dumps(water))
-    assert main(["verify", str(out)]) == 1
-    assert "input water" in capsys.readouterr().err
+    manifest = json.loads((out / "manifest.json").read_text())
+    assert manifest["plan"]["path"] == "inputs/plan.toml"
+    assert manifest["inputs"]["water"]["path"] == "inputs/water.geojson"
+    assert str(tmp_path) not in (out / "manifest.json").read_text()  # no author's absolute path
+    (inputs / "water.geojson").write_text("changed after the design was written")
+    moved = tmp_path / "far" / "away" / "design"
+    shutil.copytree(out, moved)
+    assert main(["verify", str(moved)]) == 0
 
 
 def test_same_plan_inputs_and_seed_give_identical_files(demo_inputs, tmp_path, monkeypatch):

@@ -12,7 +12,8 @@ from ._common import command
 @command(group, "demo", short_help="Run the packaged demo plan on an invented lake.")
 @click.option("-o", "--out", "out", required=True, type=click.Path(path_type=Path),
               help="Folder to write the demo design into (must not exist, unless --overwrite).")
-@click.option("--overwrite", is_flag=True, help="Replace OUT if it exists.")
+@click.option("--overwrite", is_flag=True,
+              help="Replace OUT if it is a design folder written by geosample and left as written.")
 @click.option("--json", "as_json", is_flag=True, help="Print a summary as JSON.")
 def demo_command(out: Path, overwrite: bool, as_json: bool) -> None:
     """Design a survey of an invented lake with the packaged demo plan. The plan

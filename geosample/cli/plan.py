@@ -13,9 +13,12 @@ from ._common import command, echo_json
 @click.argument("plan_file", metavar="PLAN.toml", type=click.Path(path_type=Path))
 @click.option("-o", "--out", "out", required=True, type=click.Path(path_type=Path),
               help="Folder to write the design into (must not exist, unless --overwrite).")
-@click.option("--overwrite", is_flag=True, help="Replace OUT if it exists.")
-@click.option("--bundle-inputs", is_flag=True,
-              help="Copy the plan and its layers into OUT/inputs/ so the folder alone can be verified.")
+@click.option("--overwrite", is_flag=True,
+              help="Replace OUT if it is a design folder written by geosample and left as written (never a "
+                   "folder holding the plan or its inputs, or anything else).")
+@click.option("--bundle-inputs/--no-bundle-inputs", default=True, show_default=True,
+              help="Copy the plan and its layers (a Shapefile with its own side files) into OUT/inputs/, so the "
+                   "folder alone can be verified wherever it is copied.")
 @click.option("--registration", type=click.Path(path_type=Path), default=None, metavar="REGISTRATION.json",
               help="Draw under this registration (written earlier by 'geosample register'); needs --public-value.")
 @click.option("--public-value", default=None, metavar="TEXT",
@@ -37,6 +40,10 @@ def plan_command(plan_file: Path, out: Path, overwrite: bool, bundle_inputs: boo
     and the public value (see 'geosample register'); the plan and its layers must
     be the registered ones, the plan must not fix its own seed, and the public
     value's date must have begun.
+
+    OUT is written whole or not at all (a hidden folder beside it is renamed into
+    place), and a second run to the same OUT while one is working exits with
+    code 2.
     """
     from ..workflow import run_plan
     from ._progress import steps
