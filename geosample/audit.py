@@ -17,7 +17,7 @@ import hashlib
 import json
 import os
 import platform
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict
 from importlib import metadata
 from pathlib import Path
 from typing import Any
@@ -174,17 +174,22 @@ def write_manifest(design: Design, folder: str | Path, **kw: Any) -> Path:
 
 
 def read_manifest(folder: str | Path) -> dict:
-    """Read a design folder's manifest, with clear errors for a folder that is not a design."""
+    """Read a design folder's manifest, with clear errors for a folder that is not a design.
+
+    The file is read only if it is a regular file of bounded size (never a link to a device),
+    and must hold a JSON object.
+    """
     folder = Path(folder)
     path = folder / MANIFEST
     if not folder.exists():
         raise InputFileError(f"design folder {str(folder)!r} does not exist. Give the folder that "
                              "'geosample plan ... -o FOLDER' wrote.")
-    if not path.exists():
+    if not path.exists() and not path.is_symlink():
         raise InputFileError(f"{str(folder)!r} has no {MANIFEST}: it is not a design folder written by "
                              "'geosample plan'.")
+    raw = _read_bounded(path, MAX_MANIFEST_BYTES)  # a regular file of bounded size, else InputFileError
     try:
-        data = json.loads(path.read_text(encoding="utf-8"))
+        data = json.loads(raw.decode("utf-8"))
     except (ValueError, RecursionError, OSError) as exc:  # bad JSON or UTF-8, a 5000-digit number, deep nesting
         reason = "nested too deeply" if isinstance(exc, RecursionError) else (
             exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)[:200])
@@ -273,142 +278,16 @@ def design_folder_problems(folder: str | Path) -> list[str]:
 
 
 # --------------------------------------------------------------------------- verify
-@dataclass(frozen=True)
-class Verification:
-    """The result of re-deriving a design: ``ok`` only if nothing differs."""
+def verify(folder: str | Path, *, progress: Any = None, inputs_dir: str | Path | None = None) -> "Verification":
+    """Re-derive the design in ``folder`` and compare everything in it (:func:`geosample.verifier.verify`)."""
+    from .verifier import verify as _verify
 
-    ok: bool
-    differences: tuple[str, ...]
-    checked: dict = field(default_factory=dict)
-    notes: tuple[str, ...] = ()
+    return _verify(folder, progress=progress, inputs_dir=inputs_dir)
 
 
-def _compare_rows(expected: list[dict], found: list[dict]) -> list[str]:
-    diffs: list[str] = []
-    exp = {r["site_id"]: r for r in expected}
-    got = {r.get("site_id", ""): r for r in found}
-    for sid in exp:
-        if sid not in got:
-            diffs.append(f"site {sid}: missing from schedule.csv")
-    for sid in got:
-        if sid not in exp:
-            diffs.append(f"site {sid}: in schedule.csv but not in the re-derived design")
-    for sid, e in exp.items():
-        g = got.get(sid)
-        if g is None:
-            continue
-        for key in ("stratum", "role", "reserve_rank", "visit_date", "planned_time", "lat", "lon", "x", "y"):
-            ev, gv = str(e.get(key, "")), str(g.get(key, ""))
-            if ev.startswith("'"):
-                ev = ev[1:]
-            if gv.startswith("'"):
-                gv = gv[1:]
-            if ev != gv:
-                what = "moved" if key in ("lat", "lon", "x", "y") else "changed"
-                diffs.append(f"site {sid}: {key} {what}: design says {ev!r}, schedule.csv has {gv!r}")
-    return diffs
+def __getattr__(name: str) -> Any:
+    if name == "Verification":
+        from .verifier import Verification
 
-
-def verify(folder: str | Path, *, progress: Any = None) -> Verification:
-    """Re-derive the design in ``folder`` from its manifest and input files and compare.
-
-    Returns a :class:`Verification`; ``ok`` is True only if every input hash,
-    every site and time, and every output hash match.
-    """
-    import csv
-    import tempfile
-
-    from .design import load_layers, make_design
-    from .export import write_package
-    from .export.table import schedule_rows
-    from .plan import plan_from_settings
-
-    folder = Path(folder)
-    manifest = read_manifest(folder)
-    diffs: list[str] = []
-    notes: list[str] = []
-
-    # 1. inputs
-    inputs = manifest.get("inputs", {})
-    for label, info in inputs.items():
-        if not info.get("path"):
-            raise InputFileError(f"the input layers are not in {str(folder)!r} (it was written with "
-                                 "--no-bundle-inputs); verify checks a self-contained design folder.")
-        p = (folder / info["path"]).resolve()
-        if not p.exists():
-            raise InputFileError(f"input {label} ({info['path']!r}, relative to {str(folder)!r}) is missing; "
-                                 "verify needs the input layers where the manifest says they are.")
-        h = sha256_file(p)
-        if h != info["sha256"]:
-            diffs.append(f"input {label} ({info['path']}) changed: sha256 {h[:12]}... != recorded "
-                         f"{info['sha256'][:12]}...")
-    # 2. libraries
-    now = library_versions()
-    for name, ver in manifest.get("libraries", {}).items():
-        if now.get(name) != ver:
-            notes.append(f"library {name} is {now.get(name)} here; the design was made with {ver}")
-    if manifest.get("geosample_version"):
-        from .version import __version__
-
-        if manifest["geosample_version"] != __version__:
-            notes.append(f"geosample is {__version__} here; the design was made with {manifest['geosample_version']}")
-
-    # 3. re-derive
-    settings = json.loads(json.dumps(manifest["settings"]))
-    draw = settings.get("draw", {})
-    seed = int(manifest["seed"])
-    seed_source = manifest.get("seed_source", "plan")
-    for extra in ("seed_used", "seed_source"):
-        draw.pop(extra, None)
-    _restore_dates(settings)
-    # The layers are read where the manifest recorded them (relative to the design folder);
-    # the settings stay as written, so the re-rendered report is byte-identical.
-    label_paths = {label: (folder / info["path"]).resolve() for label, info in inputs.items()}
-    plan = plan_from_settings(settings, base_dir=folder)
-    layers = load_layers(plan, label_paths)
-    design = make_design(plan, layers=layers, seed=seed, seed_source=seed_source,
-                         draw_count=int(manifest.get("draw_count", 1)),
-                         inputs={k: {"path": v.get("as_written", v["path"]), "sha256": v["sha256"]}
-                                 for k, v in inputs.items()},
-                         progress=progress, registration=manifest.get("registration"),
-                         history=manifest.get("history"))
-    expected = schedule_rows(design)
-    sched = folder / "schedule.csv"
-    if sched.exists():
-        with open(sched, newline="", encoding="utf-8") as fh:
-            found = list(csv.DictReader(fh))
-        diffs += _compare_rows(expected, found)
-    else:
-        diffs.append("schedule.csv is missing from the design folder")
-    if sites_digest(expected) != manifest.get("sites_sha256"):
-        diffs.append("the re-derived sites and times differ from those the manifest records "
-                     "(sites_sha256); see the library notes")
-
-    # 4. outputs: as found in the folder, and as re-written now
-    recorded = manifest.get("outputs", {})
-    for name, h in recorded.items():
-        p = folder / name
-        if not p.exists():
-            diffs.append(f"output {name} is missing")
-        elif sha256_file(p) != h:
-            diffs.append(f"output {name} was altered after it was written (sha256 differs from the manifest)")
-    with tempfile.TemporaryDirectory(prefix="geosample-verify-") as tmp:
-        files = write_package(design, Path(tmp))
-        for name, p in files.items():
-            if name in recorded and sha256_file(p) != recorded[name]:
-                diffs.append(f"output {name} as re-derived differs from the one recorded in the manifest")
-    ok = not diffs
-    if diffs and notes:
-        diffs += [f"note: {n}" for n in notes]
-    return Verification(ok=ok, differences=tuple(diffs),
-                        checked={"inputs": len(inputs), "sites": len(expected), "outputs": len(recorded)},
-                        notes=tuple(notes))
-
-
-def _restore_dates(settings: dict) -> None:
-    t = settings.get("time", {})
-    for key in ("start", "end"):
-        if isinstance(t.get(key), str):
-            t[key] = dt.date.fromisoformat(t[key])
-    if isinstance(t.get("skip"), list):
-        t["skip"] = [dt.date.fromisoformat(d) if isinstance(d, str) else d for d in t["skip"]]
+        return Verification
+    raise AttributeError(name)

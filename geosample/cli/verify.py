@@ -15,12 +15,19 @@ from ._common import command, echo_json
               help="Also check the draw against this registration (the copy the regulator kept).")
 @click.option("--public-value", default=None, metavar="TEXT",
               help="The value you found published at the registration's source; checked against the one used.")
+@click.option("--inputs", "inputs_dir", type=click.Path(path_type=Path), default=None, metavar="DIR",
+              help="Only for a design written with --no-bundle-inputs: the folder holding its plan file and "
+                   "layers (verify otherwise reads nothing outside OUT).")
 @click.option("--json", "as_json", is_flag=True, help="Print the result as JSON.")
-def verify_command(out: Path, registration: Path | None, public_value: str | None, as_json: bool) -> None:
-    """Re-run the design recorded in OUT/manifest.json from the input files, with
-    the recorded seed, and compare every site, time and output file. Check the
-    draw history in OUT/draws.csv against the manifest, and for a registered draw
-    that the seed is the one its registration and public value give.
+def verify_command(out: Path, registration: Path | None, public_value: str | None, inputs_dir: Path | None,
+                   as_json: bool) -> None:
+    """Re-run the design recorded in OUT/manifest.json from the plan and layers
+    bundled in OUT/inputs/, with the recorded seed, and compare everything a
+    reader may be shown: every file in OUT is listed by the manifest with its
+    SHA-256, every site and time, every figure of the manifest, every output
+    re-written byte for byte. Check the draw history in OUT/draws.csv against the
+    manifest, and for a registered draw that the seed is the one its
+    registration and public value give.
 
     With --registration, also check that the draw was made under that
     registration file: its SHA-256, the plan and layer hashes it fixed, and the
@@ -29,19 +36,24 @@ def verify_command(out: Path, registration: Path | None, public_value: str | Non
     or give the value you found there with --public-value to have it compared.
 
     Exit code 0 and "verified" only if everything matches; exit code 1 with each
-    difference listed otherwise (an input layer changed, a site moved, an output
-    edited, a library version that draws differently, another seed); exit code 2
-    for a folder or registration file that cannot be read.
+    difference listed otherwise (a file added, an input or the plan changed, a
+    site moved, a figure or an output edited, another seed); exit code 2 when OUT
+    or the registration file cannot be checked (no manifest, a damaged one, a
+    design too large to re-run). Library versions that differ from the
+    manifest's are reported ("made with other library versions"); a page that is
+    the same design rendered with another library version is reported as such.
+    Text from the files is printed with control characters escaped.
     """
     from .. import history
     from .. import registration as registry
     from ..audit import read_manifest, verify
+    from ..verifier import printable
     from ._progress import steps
 
     reg = registry.read_registration(registration) if registration is not None else None
     found = registry.public_value(public_value) if public_value is not None else None
     with steps("geosample verify") as progress:
-        result = verify(out, progress=progress)
+        result = verify(out, progress=progress, inputs_dir=inputs_dir)
     manifest = read_manifest(out)
     extra = history.check_package(out, manifest) + registry.check_manifest(out, manifest)
     if reg is not None:
@@ -54,24 +66,36 @@ def verify_command(out: Path, registration: Path | None, public_value: str | Non
         elif used != found:
             extra.append(f"the draw used the public value {registry.printable(used)!r}, not {found!r} (the value "
                          "given with --public-value): its seed is not the one the published value gives")
-    differences = list(result.differences) + extra
+    differences = list(result.differences) + [printable(d, 400) for d in extra]
     ok = result.ok and not extra
     entry = manifest.get("registration") if isinstance(manifest.get("registration"), dict) else None
+    where = printable(out)
     if as_json:
         echo_json({"verified": ok, "differences": differences, "checked": result.checked,
-                   "notes": list(result.notes), "registered": bool(entry),
-                   "registration": entry, "checked_against_registration": str(registration) if reg else None})
+                   "notes": list(result.notes), "other_library_versions": list(result.other_libraries),
+                   "rendered_with_other_library_versions": list(result.rendered_elsewhere),
+                   "registered": bool(entry), "registration": entry,
+                   "checked_against_registration": str(registration) if reg else None})
     else:
         if ok:
             c = result.checked
-            click.echo(f"verified: {c.get('sites', 0)} sites and times, {c.get('inputs', 0)} input files and "
-                       f"{c.get('outputs', 0)} output files match the manifest in {out}/")
+            click.echo(f"verified: {c.get('sites', 0)} sites and times, {c.get('inputs', 0)} input layers, the plan "
+                       f"and {c.get('outputs', 0)} output files match the manifest in {where}/, and the folder "
+                       "holds nothing else")
+            if result.other_libraries:
+                click.echo("  made with other library versions (the design re-derives the same; listed for the "
+                           "reader):")
+                for n in result.other_libraries:
+                    click.echo(f"    {n}")
             for n in result.notes:
-                click.echo(f"  note: {n}")
+                if not n.startswith("made with other library versions"):
+                    click.echo(f"  note: {n}")
         else:
-            click.echo(f"NOT verified: {len(differences)} difference(s) in {out}/", err=True)
+            click.echo(f"NOT verified: {len(differences)} difference(s) in {where}/", err=True)
             for d in differences:
-                click.echo(f"  - {registry.printable(d)}", err=True)
+                click.echo(f"  - {d}", err=True)
+            for n in result.notes:
+                click.echo(f"  note: {n}", err=True)
         _registration_lines(entry, reg, found, ok)
     if not ok:
         raise SystemExit(1)
