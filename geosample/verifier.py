@@ -55,7 +55,7 @@ GIVEN_OUTPUTS = frozenset({"draws.csv", "registration.json"})
 #: Files another command writes into a design folder later: allowed unlisted, reported as not checked.
 AFTER_DESIGN = frozenset({"assessment.html"})
 #: Outputs whose bytes depend on these libraries' versions (beyond the design).
-RENDERED = {"map.html": ("folium", "branca", "jinja2"), "report.html": ("jinja2",)}
+RENDERED = {"map.html": ("folium", "branca", "jinja2", "shapely", "GEOS"), "report.html": ("jinja2",)}
 #: What verify re-runs at most (a real design is far below; a crafted manifest may not be).
 LIMITS = {"primary sites": 20_000, "sites": 60_000, "per_day": 1_000, "season days": 3_700, "strata": 5_000}
 #: Size limits for the files verify reads whole.
@@ -141,8 +141,8 @@ def check_manifest_shape(m: Any) -> dict:
         raise _bad("format", fmt, '"geosample-manifest/1"')
     _need(m, "settings", (dict,), "a table of settings")
     seed = _need(m, "seed", (str, int), "the seed as digits")
-    if not re.fullmatch(r"[0-9]{1,40}", str(seed)):
-        raise _bad("seed", seed, "a whole number >= 0 of at most 40 digits")
+    if not re.fullmatch(r"[0-9]{1,80}", str(seed)):  # a SHA-256 read as a whole number has at most 78 digits
+        raise _bad("seed", seed, "a whole number >= 0 of at most 80 digits")
     _need(m, "seed_source", (str,), "a text", optional=True)
     count = _need(m, "draw_count", (int,), "a whole number >= 1")
     if count < 1 or count > 10**9:
@@ -247,7 +247,7 @@ def _check_folder(folder: Path, manifest: dict, diffs: list[str], notes: list[st
     for name in sorted(readable):
         recorded = listed[name]
         if recorded is not None and sha256_file(folder / name) != recorded:
-            diffs.append(f"{printable(name)} was changed after the design was written (its SHA-256 differs from "
+            diffs.append(f"{printable(name)} was altered after the design was written (its SHA-256 differs from "
                          "the manifest's)")
     return readable
 

@@ -165,7 +165,8 @@ def _leftovers(out: Path) -> None:
         if p.is_dir() and not p.is_symlink() and (p / PARTIAL_MARK).is_file():
             shutil.rmtree(p, ignore_errors=True)
             log.warning("removed %s, left unfinished by an earlier geosample run that was stopped", p)
-    for p in out.parent.glob(f".{glob.escape(out.name)}.*.geosample-old"):
+    olds = [*out.parent.glob(f".{glob.escape(out.name)}.*.geosample-old"), out.with_name(out.name + ".geosample-old")]
+    for p in (p for p in olds if p.exists() or p.is_symlink()):  # (the second: the name older versions used)
         log.warning("%s holds the design that an earlier, stopped run of geosample was replacing in %s; "
                     "look at it and remove it or rename it back (geosample leaves it alone)", p, out)
 

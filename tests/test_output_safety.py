@@ -209,12 +209,15 @@ def test_leftovers_of_stopped_runs_are_cleaned_or_reported(project, tmp_path, ca
     old = tmp_path / ".out.k2.geosample-old"
     old.mkdir()
     (old / "manifest.json").write_text("{}")
+    legacy = tmp_path / "out.geosample-old"  # the name earlier versions used
+    legacy.mkdir()
     assert main(["plan", str(project / "plan" / "plan.toml"), "-o", str(tmp_path / "out")]) == 0
     assert not ours.exists()
     assert (theirs / "keep.txt").read_text() == "keep"
     assert (old / "manifest.json").exists()
     messages = capsys.readouterr().err
-    assert str(ours) in messages and str(old) in messages
+    assert str(ours) in messages and str(old) in messages and str(legacy) in messages
+    assert legacy.is_dir()
 
 
 def test_the_draw_record_is_written_before_the_swap(project, tmp_path, monkeypatch, capsys):

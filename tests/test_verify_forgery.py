@@ -113,7 +113,7 @@ def test_an_assessment_written_later_is_allowed_and_said_to_be_unchecked(pkg, ca
 def test_an_edited_bundled_plan_fails(pkg, capsys):
     plan = pkg / "inputs" / "plan.toml"
     plan.write_text(plan.read_text().replace("tolerance = 16", "tolerance = 25"))
-    _verify(pkg, capsys, 1, "inputs/plan.toml", "changed after the design was written")
+    _verify(pkg, capsys, 1, "inputs/plan.toml", "altered after the design was written")
 
 
 def test_an_edited_plan_with_its_new_hash_in_the_manifest_fails(pkg, capsys):
@@ -203,7 +203,7 @@ def test_a_moved_site_in_the_schedule_fails(pkg, capsys):
     rows = _rows(pkg)
     rows[3]["lon"] = str(float(rows[3]["lon"]) + 0.001)
     _write_rows(pkg / "schedule.csv", rows)
-    _verify(pkg, capsys, 1, f"site {rows[3]['site_id']}: lon moved", "schedule.csv was changed")
+    _verify(pkg, capsys, 1, f"site {rows[3]['site_id']}: lon moved", "schedule.csv was altered")
 
 
 # --------------------------------------------------------------------------- outside the folder
