@@ -94,9 +94,17 @@ def field_days(design: Design) -> list[DayFiles]:
     return out
 
 
-def day_rows(design: Design, day: DayFiles) -> list[dict[str, str]]:
-    """The day CSV's rows: the schedule's rows of its stops and reserves, with :data:`EXTRA_COLUMNS`."""
-    rows = {v.site_id: r for v, r in zip(ordered_visits(design), schedule_rows(design))}
+def rows_by_site(design: Design) -> dict[str, dict[str, str]]:
+    """The schedule's rows by site id (computed once per design, shared by the day CSVs)."""
+    return {v.site_id: r for v, r in zip(ordered_visits(design), schedule_rows(design))}
+
+
+def day_rows(design: Design, day: DayFiles, rows: dict[str, dict[str, str]] | None = None) -> list[dict[str, str]]:
+    """The day CSV's rows: the schedule's rows of its stops and reserves, with :data:`EXTRA_COLUMNS`.
+
+    ``rows`` is :func:`rows_by_site` of the design, when the caller has it already.
+    """
+    rows = rows_by_site(design) if rows is None else rows
     out = []
     for v in day.stops + day.reserves:
         row = dict(rows[v.site_id])
@@ -278,12 +286,13 @@ def write_days(design: Design, folder: str | Path) -> dict[str, Path]:
     base = Path(folder) / FOLDER
     base.mkdir(parents=True, exist_ok=True)
     out: dict[str, Path] = {}
+    rows = rows_by_site(design)
     for day in field_days(design):
         gpx = base / f"{day.stem}.gpx"
         gpx.write_text(to_xml(day_gpx(design, day.day, day.stops + day.reserves, day.trips)), encoding="utf-8",
                        newline="\n")
         table = base / f"{day.stem}.csv"
-        table.write_text(_csv_text(day_rows(design, day)), encoding="utf-8", newline="")
+        table.write_text(_csv_text(day_rows(design, day, rows)), encoding="utf-8", newline="")
         sheet = base / f"{day.stem}.html"
         sheet.write_text(render_sheet(design, day), encoding="utf-8", newline="\n")
         for p in (gpx, table, sheet):
