@@ -40,7 +40,8 @@ JOB = textwrap.dedent('''
     c2 = time.process_time()
     print(json.dumps({"cpu": c2 - c0, "frame_cpu": c1 - c0, "draw_cpu": c2 - c1, "wall": time.perf_counter() - w0,
                       "rss": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024,
-                      "sites": [[s.x, s.y] for s in draw.sites], "name": frame.strata[0].name}))
+                      "sites": [[s.x, s.y] for s in draw.sites], "name": frame.strata[0].name,
+                      "crs": frame.crs.to_wkt()}))
 ''')
 
 PARTITIONED = textwrap.dedent('''
@@ -50,7 +51,7 @@ PARTITIONED = textwrap.dedent('''
     from geosample.randomizer.partitioned import draw_partitioned, partitioned_frame
     with dask.config.set(scheduler="threads"):
         ddf = dask_geopandas.read_parquet(sys.argv[1], npartitions=int(sys.argv[2]))
-        frame = partitioned_frame(ddf)
+        frame = partitioned_frame(ddf, crs=sys.argv[4])  # the frame CRS the local run chose
         draw = draw_partitioned(frame, 500, method="balanced", reserve=0.5, seed=5, name=sys.argv[3])
     print(json.dumps({"cpu": time.process_time() - c0, "wall": time.perf_counter() - w0,
                       "rss": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024,
@@ -98,8 +99,7 @@ def test_regional_frame_and_draw_grow_linearly(benchmark, files):
               f"wall {r['wall']:.1f} s, max RSS {r['rss'] / 2**20:.0f} MiB")
     benchmark.extra_info.update({str(n): {k: v for k, v in r.items() if k != "sites"} for n, r in results.items()})
     big = results[SIZES[-1]]
-    files["local_sites"] = big["sites"]
-    files["name"] = big["name"]
+    files["local_sites"], files["name"], files["crs"] = big["sites"], big["name"], big["crs"]
     assert big["cpu"] <= TARGET_CPU_S
     assert big["rss"] <= TARGET_RSS
     # about linear: 100x the lakes may cost at most 150x the CPU of the 10k run
@@ -109,11 +109,11 @@ def test_regional_frame_and_draw_grow_linearly(benchmark, files):
 def test_partitioned_draw_of_a_million_lakes_equals_the_local_draw(benchmark, files):
     if "local_sites" not in files:
         local = _run(JOB, str(files[SIZES[-1]]))
-        files["local_sites"], files["name"] = local["sites"], local["name"]
+        files["local_sites"], files["name"], files["crs"] = local["sites"], local["name"], local["crs"]
     box = {}
 
     def run():
-        box["r"] = _run(PARTITIONED, str(files[SIZES[-1]]), "16", files["name"])
+        box["r"] = _run(PARTITIONED, str(files[SIZES[-1]]), "16", files["name"], files["crs"])
 
     benchmark.pedantic(run, rounds=1, iterations=1)
     r = box["r"]
