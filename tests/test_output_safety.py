@@ -278,3 +278,14 @@ def test_no_bundle_inputs_writes_no_inputs_and_no_absolute_path(project, tmp_pat
     assert main(["plan", str(project / "plan" / "plan.toml"), "-o", str(tmp_path / "o2"), "--bundle-inputs",
                  "-q"]) == 0  # the old flag is still accepted
     assert (tmp_path / "o2" / "inputs" / "plan.toml").is_file()
+
+
+def test_files_written_by_assess_get_the_permissions_the_umask_gives(tmp_path):
+    from geosample.export.assessment import atomic_write_text
+
+    old = os.umask(0o022)
+    try:
+        p = atomic_write_text(tmp_path / "assessment.html", "<p>x</p>")
+    finally:
+        os.umask(old)
+    assert p.stat().st_mode & 0o777 == 0o644
