@@ -239,6 +239,37 @@ def _inside(page, sid: str, size) -> bool:
     return 20 < x < size[0] - 20 and 120 < y < size[1] - 60
 
 
+def test_crowded_reserves_are_labelled_only_when_zoomed_in(browser, tmp_path):
+    """300 extra reserves in the north basin: unlabelled squares at open, labels once few are in view."""
+    import dataclasses
+
+    import shapely
+
+    from geosample.model import Visit
+
+    d = build_design()
+    north = d.frame.strata[0]
+    rng = np.random.default_rng(5)
+    extra = []
+    b = shapely.bounds(north.geometry)
+    while len(extra) < 300:
+        x, y = rng.uniform(b[:2], b[2:])
+        if shapely.contains_xy(north.geometry, x, y):
+            lon, lat = TO_LONLAT.transform(x, y)
+            extra.append(Visit(f"NB-{len(extra) + 100:03d}", north.name, "reserve", len(extra) + 3, x, y, lat, lon))
+    d = dataclasses.replace(d, schedule=dataclasses.replace(d.schedule, visits=d.schedule.visits + tuple(extra)))
+    path = write_map(d, tmp_path / "map.html")
+    page, problems = _open(browser, path, DESKTOP, "#day=1")
+    shown = _shown(page)
+    assert len(shown["reserves"]) == 302 and shown["labelled"] == 0
+    lat, lon = _site_xy("NB-004")
+    page.evaluate("([a, b]) => { window.geosampleMap.map.setView([a, b], 19, {animate: false}); }", [lat, lon])
+    shown = _shown(page)
+    assert shown["labelled"] == 302  # few in view: every reserve label is drawn again
+    assert problems == []
+    page.close()
+
+
 def test_unknown_day_shows_all_days(browser, map_file):
     page, problems = _open(browser, map_file, PHONE, "#day=9")
     assert page.evaluate("window.geosampleMap.day()") is None
@@ -288,11 +319,15 @@ def test_user_text_runs_nothing(browser, tmp_path):
     # Open every popup that holds a stratum name (strata and sites), and show the tooltips.
     for el in page.locator("path.leaflet-interactive").all():
         el.dispatch_event("click")
-    for sid in PRIMARY:
+    for sid in PRIMARY:  # one popup at a time, the map still (autoPan moves it)
+        page.evaluate("window.geosampleMap.map.closePopup()")
+        page.wait_for_timeout(300)
+        page.evaluate("{ const g = window.geosampleMap; g.map.fitBounds(g.waterBounds, {animate: false}); }")
         x, y = _point(page, *_site_xy(sid))
         page.mouse.move(x, y)
         page.mouse.click(x, y)
-    assert page.locator(".leaflet-popup-content").count() >= 1
+        page.locator(".leaflet-popup-content").wait_for()
+        assert XSS_NAMES[DAY_OF[sid] - 1] in page.locator(".leaflet-popup-content").inner_text()
     page.evaluate("window.geosampleMap.map.closePopup()")
     page.wait_for_timeout(400)  # any pan still running
     page.locator("#gs-legend summary").click()

@@ -465,9 +465,14 @@
     map: map, design: D, waterBounds: waterBounds,
     day: function () { return current; },
     shown: function () {
-      var out = {sites: [], reserves: [], routes: []};
+      var out = {sites: [], reserves: [], routes: [], labelled: 0};
       if (map.hasLayer(siteGroup)) { siteGroup.eachLayer(function (m) { out.sites.push(m.gsSite.id); }); }
-      if (map.hasLayer(reserveGroup)) { reserveGroup.eachLayer(function (m) { out.reserves.push(m.gsSite.id); }); }
+      if (map.hasLayer(reserveGroup)) {
+        reserveGroup.eachLayer(function (m) {
+          out.reserves.push(m.gsSite.id);
+          if (m.options.label) { out.labelled += 1; }
+        });
+      }
       if (map.hasLayer(routeGroup)) { routeGroup.eachLayer(function (l) { out.routes.push(l.gsRoute.name); }); }
       return out;
     },
