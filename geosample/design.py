@@ -8,6 +8,7 @@ through :func:`geosample.plan.load_layers` and writes nothing.
 from __future__ import annotations
 
 import logging
+import math
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable
@@ -209,6 +210,59 @@ def days_plan_from_plan(plan: Plan, *, days: int | None = None, per_day: int | N
         confidence=size["confidence"], bound=size["bound"], sides=size["sides"], strata=strata, names=DAY_NAMES)
 
 
+def _days_for_units(days, units: int) -> int:
+    """Field days to draw so that, weighted by temporal stratum, they count as at least ``units`` equal days.
+
+    The days per temporal stratum are known before the draw
+    (:func:`geosample.randomizer.days.allocate_days`); ``k_eff = 1 / sum_s W_s^2 / k_s`` with
+    ``W_s = K_s / K`` is below ``k`` when the strata's shares are not met exactly, so ``k`` is
+    raised until ``k_eff >= units`` (at most every allowed day).
+    """
+    from collections import Counter
+
+    from .randomizer.days import allocate_days
+
+    K = len(days)
+    if not K or not all(getattr(d, "temporal_stratum", "") for d in days):
+        return units
+    sizes = list(Counter(d.temporal_stratum for d in days).values())
+    k = max(units, len(sizes))
+    while k < K:
+        ks = allocate_days(sizes, k)
+        if 1.0 / sum((Ks / K) ** 2 / kk for Ks, kk in zip(sizes, ks)) + 1e-9 >= units:
+            break
+        k += 1
+    return min(k, K)
+
+
+def _temporal_units(schedule, visits) -> tuple[float, float, int]:
+    """``(k_eff, gap, k)`` of the field days carrying ``visits``, over the temporal strata of the season.
+
+    ``W_s = K_s / K`` (allowed days of temporal stratum s over all), ``k_s`` the drawn days of s
+    with one of the visits: ``k_eff = 1 / sum_s W_s^2 / k_s`` (the number of equal days with the
+    same variance, Cochran 1977 ch. 5 applied to days) and ``gap = sum_s |k_s / k - W_s|`` (how
+    far the days' make-up is from the season's). Without temporal strata on the days: ``(k, 0, k)``.
+    """
+    from collections import Counter
+
+    dates = {v.visit_date for v in visits}
+    k = len(dates)
+    days = tuple(getattr(schedule, "days", ()) or ())
+    if not k or not days or any(v.day_index is None or v.day_index >= len(days) for v in visits) \
+            or not all(d.temporal_stratum for d in days):
+        return float(k), 0.0, k
+    allowed = Counter(d.temporal_stratum for d in days)
+    K = sum(allowed.values())
+    drawn: dict[str, set] = {}
+    for v in visits:
+        drawn.setdefault(days[v.day_index].temporal_stratum, set()).add(v.visit_date)
+    k_s = {s: len(drawn.get(s, ())) for s in allowed}
+    gap = sum(abs(k_s[s] / k - allowed[s] / K) for s in allowed)
+    if any(n == 0 for n in k_s.values()):
+        return 0.0, gap, k
+    return 1.0 / sum((allowed[s] / K) ** 2 / k_s[s] for s in allowed), gap, k
+
+
 def _day_promise(plan: Plan, schedule, strata: int = 1) -> dict:
     """What the design as drawn promises: the bound on the field days that carry primary visits.
 
@@ -220,10 +274,29 @@ def _day_promise(plan: Plan, schedule, strata: int = 1) -> dict:
     primaries = [v for v in schedule.visits if v.role == "primary" and v.visit_date is not None]
     per = Counter(v.visit_date for v in primaries)
     k, m_min = len(per), min(per.values(), default=0)
-    units = k
-    if plan.settings["size"]["bound"] in ("bernstein", "betting") and strata > 1 and primaries:
-        units = min(len({v.visit_date for v in primaries if v.stratum == name})
-                    for name in {v.stratum for v in primaries})
+    bound = plan.settings["size"]["bound"]
+    extra_notes: list[str] = []
+    widen = 0.0
+    if bound in ("bernstein", "betting"):
+        names = sorted({v.stratum for v in primaries})
+        parts = [_temporal_units(schedule, [v for v in primaries if v.stratum == name]) for name in names]
+        units = min((p[2] for p in parts), default=0)
+        L = _largest(plan.settings["size"], "range") or 0.0
+        widen = max((L / 2.0 * p[1] for p in parts), default=0.0)
+        if units < k and strata > 1:
+            extra_notes.append(f"{bound} runs in each of the {strata} strata on its own field days (as the "
+                               f"assessment does); the promise uses the fewest, {units} days")
+        if widen > 0:
+            extra_notes.append(f"the drawn days' make-up over the temporal strata differs from their shares of the "
+                               f"season: the assessment widens the {bound} interval by (L/2) sum_s |k_s/k - K_s/K|, "
+                               f"here {widen:.4g}, and so does this promise")
+    else:
+        eff, _, _ = _temporal_units(schedule, primaries)
+        units = int(math.floor(eff + 1e-9))
+        if units < k:
+            extra_notes.append(f"the temporal strata are weighted by their shares of the season (K_s/K), as in the "
+                               f"assessment: the {k} days count as {eff:.4g} equal days (1 / sum_s W_s^2 / k_s); the "
+                               f"promise uses {units}")
     out = {"days": k, "visits": sum(per.values()), "per_day_min": m_min, "per_day_max": max(per.values(), default=0)}
     size = plan.settings["size"]
     if units < 2:
@@ -238,10 +311,7 @@ def _day_promise(plan: Plan, schedule, strata: int = 1) -> dict:
         return out
     from dataclasses import replace
 
-    p = replace(p, visits=out["visits"], days=k)
-    if units < k:
-        p = replace(p, notes=p.notes + (f"{p.bound} runs in each of the {strata} strata on its own field days "
-                                         f"(as the assessment does); the promise uses the fewest, {units} days",))
+    p = replace(p, visits=out["visits"], days=k, half_width=p.half_width + widen, notes=p.notes + tuple(extra_notes))
     out.update(sentence=p.sentence(), half_width=p.half_width, error_bound=p.error_bound, basis=p.basis,
                assumption=p.assumption, notes=list(p.notes), bound=p.bound, day_sd=p.day_sd,
                reached=size.get("tolerance") is None or p.half_width <= size["tolerance"] * (1 + 1e-9))
@@ -390,11 +460,12 @@ def make_design(
                 days_plan = days_plan_from_plan(plan, days=n_temporal, per_day=m, strata=len(frame.strata))
                 if days_plan.half_width <= settings["size"]["tolerance"] * (1 + 1e-9):
                     break
+        k_units = _days_for_units(day_tuple, days_plan.days)
         total = allocation.total  # a fixed size.n stays fixed: the report states what its days give
-        if settings["size"].get("n") is None and days_plan.visits > total:
-            total = days_plan.visits
+        if settings["size"].get("n") is None and k_units * days_plan.per_day > total:
+            total = k_units * days_plan.per_day
             allocation = allocation_from_plan(plan, frame, n=total)
-        crew_days = min(len(day_tuple), total, max(days_plan.days, -(-total // t["per_day"]))) or None
+        crew_days = min(len(day_tuple), total, max(k_units, -(-total // t["per_day"]))) or None
         if days_plan.days > len(day_tuple):
             day_warnings += (f"the {settings['size']['bound']} bound needs {days_plan.days} field days, but the season "
                              f"allows only {len(day_tuple)}: the report states what {len(day_tuple)} days give",)
