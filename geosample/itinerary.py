@@ -15,22 +15,31 @@ The model, in brief (``docs/methods.md``, "Day routes and holding time"):
 - **Order.** A closed tour from the access point through the sites: Christofides'
   heuristic (``networkx``), improved by 2-opt exchanges until none shortens it.
   The direction of travel is drawn at random (the other direction is taken
-  only when the drawn one does not fit the window: the return leg is not
-  part of the window, so the two directions can differ).
-- **Times.** Travel takes ``distance / speed``; each site takes
-  ``minutes_on_site``. A visit's planned time is the arrival at the site (the
-  start of the sampling). The crew leaves the access point no earlier than the
-  window opens and finishes its last sampling no later than it closes; the
-  leaving time is drawn uniformly over the slack that leaves.
+  only when the drawn one does not fit: with splits for the holding time the
+  two directions can differ).
+- **Times.** Travel takes ``distance / speed``, rounded up to whole minutes per
+  leg; each site takes ``minutes_on_site`` (rounded up to a whole minute). A
+  visit's planned time is the arrival at the site (the start of the sampling).
+  The day's trips, returns included, are timed as one round from minute 0;
+  the round starts at a minute ``u`` drawn uniformly among the ``L`` whole
+  minutes at which sampling may start, taken as a circle: a visit ``o`` minutes
+  into the round is planned ``(u + o) mod L`` minutes after the first start.
+  The part of the round that comes round past the end is worked first, as a
+  trip of its own from the depot (its crew may leave before the window opens,
+  so that its first sample is taken at its planned time). So every planned time
+  is uniform over the window (``TIME_DRAW``). All arithmetic is in UTC, so a
+  window across a daylight-saving change has its real length and every planned
+  time exists.
 - **Holding time.** The oldest sample of a trip is its first one; it must reach
   the lab within ``holding_h``: (return to the access point - first planned
   time) + ``lab_minutes`` <= ``holding_h`` * 60. A day that cannot meet it is
   split into consecutive trips along the same tour, each returning to the
   access point, where a courier takes the samples to the lab and the crew sets
   out again at once. A single site too far to meet it is reported with the figures.
-- **A day that does not fit its window** cannot be fixed by more trips of the
-  same crew (each extra return only adds travel), so it raises
-  :class:`~geosample.errors.InfeasibleError` with the figures.
+- **A day that does not fit its window** (its round, returns included, longer
+  than ``L``) cannot be fixed by more trips of the same crew (each extra return
+  only adds travel), so it raises :class:`~geosample.errors.InfeasibleError`
+  with the figures.
 """
 from __future__ import annotations
 
@@ -209,6 +218,7 @@ class _Trip:
     length_m: float
     holding_min: float  # first sample to lab
     samples_depot: bool = False  # the depot is a site sampled at the start
+    early: bool = False  # the part of the tour past the circle's end, worked from the window's opening
 
 
 def _leg_minutes(metres: float, m_per_min: float) -> float:
@@ -336,10 +346,11 @@ def _choose_access(
 def _plan_day(
     day_index: int, day: FieldDay, day_visits: Sequence[Visit], frame: Frame, *,
     m_per_min: float, on_site: float, lab_minutes: float, limit_min: float,
-    reverse: bool, u_start: float, max_day_minutes: float | None,
+    reverse: bool, circle: float, max_day_minutes: float | None,
     legs: Any = None, rows: Sequence[int] = (),
 ) -> _DayPlan:
-    """One (part of a) day. With access points, ``legs`` holds the day's legs among the access
+    """The route and trips of one (part of a) day, timed from minute 0 (placed in the window by
+    :func:`_place_day`). With access points, ``legs`` holds the day's legs among the access
     points and all the day's sites (in that order) and ``rows`` the rows of this part's sites."""
     if frame.access:
         m = len(frame.access)
@@ -364,31 +375,20 @@ def _plan_day(
         tour = closed_tour(dist)
         ids = tuple(v.site_id for v in ordered)
         acc, ncand, samples_depot = None, 0, True
-    window = (day.window_end - day.window_start).total_seconds() / 60.0
     forward = list(tour[1:])
     first_try = forward[::-1] if reverse else forward
     options = [first_try, first_try[::-1]]
     timed = [_time_day(dist, o, m_per_min, on_site, lab_minutes, limit_min, samples_depot) for o in options]
-    fits = [_span(tr, on_site) <= window + 1e-9 for tr in timed]
-    # The random direction is kept unless only the other one fits the window
-    # (when neither fits, the figures reported are the shorter one's).
+    fits = [tr[-1].back <= circle + 1e-9 for tr in timed]
+    # The random direction is kept unless only the other one fits the circle (a day's trips, returns
+    # included, must fit in it; with splits for the holding time the two directions can differ).
+    # When neither fits, the figures reported (by _place_day) are the shorter one's.
     if fits[0]:
         trips = timed[0]
     elif fits[1]:
         trips = timed[1]
     else:
-        trips = min(timed, key=lambda tr: _span(tr, on_site))
-    span = _span(trips, on_site)
-    if span > window + 1e-9:
-        km = sum(tr.length_m for tr in trips) / 1000.0
-        raise InfeasibleError(
-            f"field day {day.date}: {len(day_visits)} visits need {span:.0f} min from leaving "
-            f"{'access point ' + acc.name if acc else 'the first site'} to the end of the last sampling "
-            f"({km:.1f} km at time.speed_kmh = {m_per_min * 60 / 1000:g}, "
-            f"{on_site:g} min on each site, {len(trips)} trip(s)), but the sampling window "
-            f"{day.window_start:%H:%M}-{day.window_end:%H:%M} lasts {window:.0f} min. "
-            "Lower time.per_day, widen time.window, or raise time.speed_kmh."
-        )
+        trips = min(timed, key=lambda tr: tr[-1].back)
     total = trips[-1].back
     if max_day_minutes is not None and total > max_day_minutes + 1e-9:
         raise InfeasibleError(
@@ -396,17 +396,103 @@ def _plan_day(
             f"{total:.0f} min ({len(trips)} trip(s)), over max_day_minutes = {max_day_minutes:g}. "
             "Lower time.per_day, or allow a longer crew day."
         )
-    # Leave at a whole minute drawn uniformly among those that fit the window (times on site are
-    # whole minutes in practice; with fractional ones the times keep their fraction).
-    first = day.window_start.replace(second=0, microsecond=0)
-    if first < day.window_start:
-        first += dt.timedelta(minutes=1)
-    slack = (day.window_end - first).total_seconds() / 60.0 - span
-    if slack < 0:  # the window fits the route only from its exact start
-        start = day.window_start + dt.timedelta(minutes=u_start * (window - span))
-    else:
-        start = first + dt.timedelta(minutes=math.floor(u_start * (math.floor(slack + 1e-9) + 1)))
-    return _DayPlan(day_index, acc, xy, ids, dist, tuple(trips), start, ncand, legs, idx)
+    return _DayPlan(day_index, acc, xy, ids, dist, tuple(trips), day.window_start, ncand, legs, idx)
+
+
+# --------------------------------------------------------------------------- the day on the circle
+TIME_DRAW = (
+    "Each field day's route is timed from one start drawn uniformly among the whole minutes at which "
+    "sampling may start (from the window's opening to its end less the time on site), with that span "
+    "taken as a circle: the part of the route that would run past its end is worked first, from the "
+    "window's opening, as a trip of its own. So every visit's planned time is uniformly distributed over "
+    "the day's window, whatever its place on the route."
+)
+
+
+def _epoch_minute(t: dt.datetime | float, *, up: bool) -> int:
+    s = (t.timestamp() if isinstance(t, dt.datetime) else float(t)) / 60.0
+    return math.ceil(s - 1e-9) if up else math.floor(s + 1e-9)
+
+
+def _later(t: dt.datetime, minutes: float) -> dt.datetime:
+    """``minutes`` of real time after ``t``, in ``t``'s zone (added in UTC: right across a clock change)."""
+    return (t.astimezone(dt.timezone.utc) + dt.timedelta(minutes=minutes)).astimezone(t.tzinfo)
+
+
+def _circle(day: FieldDay, on_site: float) -> tuple[int, int]:
+    """The day's whole-minute sampling starts: the first (minutes since 1970-01-01 UTC) and how many.
+
+    Starts run from the first whole minute of the window to the last whole minute that leaves
+    ``on_site`` minutes before the window closes, in real elapsed time.
+    """
+    lo = _epoch_minute(day.window_start, up=True)
+    hi = _epoch_minute(day.window_end.timestamp() - 60.0 * on_site, up=False)
+    return lo, hi - lo + 1
+
+
+def _wrap(trip: _Trip, shift: float, length: int, dist: np.ndarray, m_per_min: float, on_site: float,
+          lab_minutes: float) -> list[_Trip]:
+    """``trip`` moved ``shift`` minutes later on a circle of ``length`` minutes.
+
+    Visits whose time reaches ``length`` go round to the start: they become a trip of their own
+    (from the depot, the same legs after the first) ``length`` minutes earlier, and the trip's
+    first part returns to the depot from its last visit before the cut.
+    """
+    cut = next((j for j, a in enumerate(trip.arrive) if shift + a >= length - 1e-9), len(trip.arrive))
+    nodes = trip.nodes[1:] if trip.samples_depot else trip.nodes
+    lead = 1 if trip.samples_depot else 0
+    if cut == len(trip.arrive):
+        return [dataclasses.replace(trip, leave=trip.leave + shift, arrive=tuple(a + shift for a in trip.arrive),
+                                    back=trip.back + shift)]
+    if cut == 0:
+        return [dataclasses.replace(trip, leave=trip.leave + shift - length,
+                                    arrive=tuple(a + shift - length for a in trip.arrive),
+                                    back=trip.back + shift - length, early=True)]
+    head = _time_trip(dist, nodes[: cut - lead], trip.leave + shift, m_per_min, on_site, lab_minutes,
+                      samples_depot=trip.samples_depot)
+    first = trip.nodes[cut]
+    leave = trip.arrive[cut] + shift - length - _leg_minutes(dist[0, first], m_per_min)
+    tail = _time_trip(dist, trip.nodes[cut:], leave, m_per_min, on_site, lab_minutes)
+    return [dataclasses.replace(tail, early=True), head]
+
+
+def _place_day(day: FieldDay, plans: Sequence[_DayPlan], lo: int, length: int, u: int, *, m_per_min: float,
+               on_site: float, lab_minutes: float, n_visits: int) -> list[tuple[_DayPlan, _Trip]]:
+    """The day's trips placed in its window: one start ``u`` on the circle of ``length`` start minutes.
+
+    The parts (one per water body) follow one another with the slack spread evenly after each;
+    a visit at ``o`` minutes into that sequence is planned ``(u + o) mod length`` minutes after the
+    window's first start ``lo``. For a fixed sequence and ``u`` uniform on 0..length-1 that is
+    uniform on 0..length-1 for every visit. Returns (plan, trip) pairs in time order; each plan's
+    ``start`` is the first start minute and trip times count from it.
+    """
+    total = sum(p.trips[-1].back for p in plans)
+    if total > length + 1e-9:
+        km = sum(tr.length_m for p in plans for tr in p.trips) / 1000.0
+        window = (day.window_end.timestamp() - day.window_start.timestamp()) / 60.0
+        where = "the access point" if plans[0].access else "the first site"
+        raise InfeasibleError(
+            f"field day {day.date}: {n_visits} visits need {total:.0f} min from leaving {where} to the "
+            f"last return ({km:.1f} km at time.speed_kmh = {m_per_min * 60 / 1000:g}, {on_site:g} min on "
+            f"each site, {sum(len(p.trips) for p in plans)} trip(s)), but sampling may start only in "
+            f"{length} min of the window {day.window_start:%H:%M}-{day.window_end:%H:%M} "
+            f"({window:.0f} min less {on_site:g} min on site). For planned times spread evenly over the "
+            "window the whole round must fit in it. Lower time.per_day, widen time.window, or raise "
+            "time.speed_kmh."
+        )
+    gap = math.floor((length - total) / len(plans) + 1e-9)
+    start = dt.datetime.fromtimestamp(lo * 60, tz=dt.timezone.utc).astimezone(day.window_start.tzinfo)
+    out: list[tuple[_DayPlan, _Trip]] = []
+    offset = 0.0
+    for plan in plans:
+        placed = [piece for trip in plan.trips
+                  for piece in _wrap(trip, u + offset, length, plan.dist, m_per_min, on_site, lab_minutes)]
+        placed.sort(key=lambda tr: tr.leave)
+        new = dataclasses.replace(plan, trips=tuple(placed), start=start)
+        out.extend((new, tr) for tr in placed)
+        offset += plan.trips[-1].back + gap
+    out.sort(key=lambda pt: pt[1].leave)
+    return out
 
 
 def _time_day(
@@ -424,11 +510,6 @@ def _time_day(
         trips.append(trip)
         t = trip.back
     return tuple(trips)
-
-
-def _span(trips: Sequence[_Trip], on_site: float) -> float:
-    """Minutes from the first departure to the end of the last sampling."""
-    return trips[-1].arrive[-1] + on_site
 
 
 # --------------------------------------------------------------------------- summaries
@@ -571,12 +652,19 @@ def build_itinerary(
     marginal: dict[str, list[float]] = {}
     stratum_of = {v.site_id: v.stratum for v in schedule.visits}
 
+    on_site = float(math.ceil(minutes_on_site - 1e-9))  # whole minutes on site in the timetable
     for day_index in sorted(by_day):
-        reverse = bool(rng.random() < 0.5)
-        u_start = float(rng.random())
         if not 0 <= day_index < len(schedule.days):
             raise ValueError(f"visit day_index {day_index} is outside Schedule.days (0..{len(schedule.days) - 1})")
         day = schedule.days[day_index]
+        lo, length = _circle(day, minutes_on_site)
+        if length < 1:
+            raise InfeasibleError(
+                f"field day {day.date}: the window {day.window_start:%H:%M}-{day.window_end:%H:%M} has no whole "
+                f"minute at which a sampling of time.minutes_on_site = {minutes_on_site:g} min can start and end "
+                "inside it. Widen time.window or lower time.minutes_on_site.")
+        reverse = bool(rng.random() < 0.5)
+        u = int(rng.integers(length))
         day_visits = by_day[day_index]
         legs = _day_legs(day_visits, frame)
         groups = _water_groups(day_visits, frame, legs)
@@ -586,17 +674,19 @@ def build_itinerary(
                 f"{len(groups)} parts, one after the other, each from its own access point; road travel "
                 "between them is not planned: leave time for it."
             )
-        order = 0
-        t_i = 0
         row_of = {v.site_id: r for r, v in enumerate(day_visits)}
-        for g_visits, g_day in zip(groups, _split_window(day, [len(g) for g in groups])):
-            plan = _plan_day(
-                day_index, g_day, g_visits, frame, m_per_min=m_per_min, on_site=minutes_on_site,
-                lab_minutes=lab_minutes, limit_min=limit_min, reverse=reverse, u_start=u_start,
+        plans = [
+            _plan_day(
+                day_index, day, g_visits, frame, m_per_min=m_per_min, on_site=on_site,
+                lab_minutes=lab_minutes, limit_min=limit_min, reverse=reverse, circle=length,
                 max_day_minutes=max_day_minutes, legs=legs, rows=[row_of[v.site_id] for v in g_visits],
             )
-            order, t_i = _collect_day(plan, day, frame, order, t_i, updates, marginal, routes, stratum_of,
-                                      to_lonlat, limit_min, lab_minutes, speed_kmh, m_per_min, warnings)
+            for g_visits in groups
+        ]
+        pieces = _place_day(day, plans, lo, length, u, m_per_min=m_per_min, on_site=on_site,
+                            lab_minutes=lab_minutes, n_visits=len(day_visits))
+        _marginals(plans, marginal, stratum_of, m_per_min)
+        _collect_day(pieces, day, frame, updates, routes, to_lonlat, limit_min, lab_minutes, speed_kmh, warnings)
 
     visits = tuple(
         dataclasses.replace(v, planned_time=updates[v.site_id][0], route_order=updates[v.site_id][1])
@@ -610,6 +700,7 @@ def build_itinerary(
         routes=tuple(routes),
         travel_minutes_per_site=travel,
         warnings=tuple(dict.fromkeys(warnings)),
+        time_draw=TIME_DRAW if by_day else schedule.time_draw,
     )
     if updates:
         out = dataclasses.replace(out, time_of_day=_time_of_day(out))
@@ -626,14 +717,13 @@ def _depot_site_saving(plan: _DayPlan, trip: _Trip, m_per_min: float) -> float:
 
 
 def _route(
-    plan: _DayPlan, trip: _Trip, t_i: int, day: FieldDay, frame: Frame, to_lonlat: Any,
+    plan: _DayPlan, trip: _Trip, t_i: int, n_trips: int, day: FieldDay, frame: Frame, to_lonlat: Any,
     ids: tuple[str, ...], limit_min: float, lab_minutes: float, speed_kmh: float, warnings: list[str],
 ) -> Route:
     nodes = ((0,) if not trip.samples_depot else ()) + trip.nodes + (0,)
     xy_path = _path(plan.legs, plan.idx, nodes)
     lon, lat = to_lonlat.transform([p[0] for p in xy_path], [p[1] for p in xy_path])
     ok = trip.holding_min <= limit_min + 1e-9
-    n_trips = len(plan.trips)
     where = f"access point {plan.access.name}" if plan.access else f"first site {ids[0]}"
     notes = []
     if plan.access is not None:
@@ -642,9 +732,17 @@ def _route(
         notes.append(f"Starts and ends at {where} (no access points in the frame); lab assumed {lab_minutes:g} min from it.")
     if n_trips > 1:
         notes.append(
-            f"Trip {t_i} of {n_trips} this day: the day was split to meet the holding time; "
-            f"at the end of each trip the samples go to the lab by courier from {where} and the crew sets out again."
+            f"Trip {t_i} of {n_trips} this day: the day was split to meet the holding time, to work the part of "
+            "the round that runs past the window's end from its opening, or by water body; at the end of each "
+            f"trip the samples go to the lab by courier from {where}."
         )
+    leave = _later(plan.start, trip.leave)
+    if trip.early:
+        notes.append("Worked first: this part of the day's round comes round from the window's end to its opening "
+                     "(planned times are spread evenly over the window).")
+    if leave < day.window_start:
+        notes.append(f"Leaves {leave:%H:%M}, before the window opens at {day.window_start:%H:%M}, so that its "
+                     "first sample is taken at its planned time.")
     notes.append(
         f"Holding time: {trip.holding_min:.0f} min from the first sample to the lab "
         f"(limit {limit_min:.0f} min, lab {lab_minutes:g} min from {where})."
@@ -668,31 +766,37 @@ def _route(
         coords_xy=xy_path,
         coords_lonlat=tuple((float(a), float(b)) for a, b in zip(lon, lat)),
         length_m=trip.length_m,
-        start=plan.start + dt.timedelta(minutes=trip.leave),
-        end=plan.start + dt.timedelta(minutes=trip.back),
+        start=leave,
+        end=_later(plan.start, trip.back),
         lab_deadline_ok=ok,
         notes=tuple(notes),
     )
 
 
-def _collect_day(plan, day, frame, order, t_i, updates, marginal, routes, stratum_of, to_lonlat, limit_min,
-                 lab_minutes, speed_kmh, m_per_min, warnings):
-    """Planned times, route order, travel costs and routes of one planned (part of a) day."""
-    for trip in plan.trips:
-        t_i += 1
+def _marginals(plans: Sequence[_DayPlan], marginal: dict, stratum_of: dict, m_per_min: float) -> None:
+    """Each site's marginal travel minutes on its trip of the round (before the round is placed on
+    the circle: cutting it there is a matter of timing, not of where the sites are)."""
+    for plan in plans:
+        for trip in plan.trips:
+            ids = tuple(plan.site_ids[n] for n in trip.nodes)
+            for sid, c in zip(ids if not trip.samples_depot else ids[1:],
+                              marginal_minutes(plan.dist, trip.nodes, m_per_min)):
+                marginal.setdefault(stratum_of[sid], []).append(c)
+            if trip.samples_depot:
+                # The first site is the depot: its marginal cost is what the tour saves without it.
+                marginal.setdefault(stratum_of[ids[0]], []).append(_depot_site_saving(plan, trip, m_per_min))
+
+
+def _collect_day(pieces, day, frame, updates, routes, to_lonlat, limit_min, lab_minutes, speed_kmh, warnings):
+    """Planned times, route order, travel costs and routes of one day's trips (in time order)."""
+    order = 0
+    for t_i, (plan, trip) in enumerate(pieces, start=1):
         ids = tuple(plan.site_ids[n] for n in trip.nodes)
         for sid, arr in zip(ids, trip.arrive):
             order += 1
-            updates[sid] = (plan.start + dt.timedelta(minutes=arr), order)
-        for sid, c in zip(ids if not trip.samples_depot else ids[1:],
-                          marginal_minutes(plan.dist, trip.nodes, m_per_min)):
-            marginal.setdefault(stratum_of[sid], []).append(c)
-        if trip.samples_depot:
-            # The first site is the depot: its marginal cost is what the tour saves without it.
-            marginal.setdefault(stratum_of[ids[0]], []).append(_depot_site_saving(plan, trip, m_per_min))
-        routes.append(_route(plan, trip, t_i, day, frame, to_lonlat, ids, limit_min, lab_minutes,
+            updates[sid] = (_later(plan.start, arr), order)
+        routes.append(_route(plan, trip, t_i, len(pieces), day, frame, to_lonlat, ids, limit_min, lab_minutes,
                              speed_kmh, warnings))
-    return order, t_i
 
 
 def _day_legs(day_visits: Sequence[Visit], frame: Frame) -> Any:
@@ -723,17 +827,3 @@ def _water_groups(day_visits: Sequence[Visit], frame: Frame, legs: Any) -> list[
     for v, a in zip(day_visits, nearest):
         groups.setdefault(int(a), []).append(v)
     return [groups[a] for a in sorted(groups)]
-
-
-def _split_window(day: FieldDay, sizes: Sequence[int]) -> list[FieldDay]:
-    """The day's window cut into consecutive parts with lengths proportional to ``sizes``."""
-    if len(sizes) == 1:
-        return [day]
-    total = float(sum(sizes))
-    span = day.window_end - day.window_start
-    out, start = [], day.window_start
-    for i, k in enumerate(sizes):
-        end = day.window_end if i == len(sizes) - 1 else start + span * (k / total)
-        out.append(dataclasses.replace(day, window_start=start, window_end=end))
-        start = end
-    return out

@@ -348,6 +348,7 @@ def _schedule(design: Design) -> dict:
         "window": " to ".join(str(w) for w in window) if isinstance(window, (list, tuple)) else str(window or ""),
         "timezone": design.survey.get("timezone", ""), "per_day": t.get("per_day", ""),
         "calendar_days": sched.calendar_days or len(sched.days), "field_days": len(days), "visits": len(visits),
+        "time_draw": sched.time_draw or "Planned times are random within the window.",
         "weeks": week_rows, "time_of_day": tod, "spread_note": spread_note,
         "warnings": list(sched.warnings),
     }
