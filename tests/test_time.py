@@ -411,3 +411,39 @@ def test_time_of_day_summary_by_hand():
     assert out["A"] == {"n": 4.0, "earliest_h": 7.5, "median_h": (9.0 + 10.0) / 2, "latest_h": 13.25,
                         "share_before_10": 0.5}  # 10:00 itself is not before 10:00
     assert out["B"]["earliest_h"] == out["B"]["latest_h"] == 16.75
+
+
+# --------------------------------------------------------------------------- window edges stay on the day
+@pytest.mark.parametrize("window, text", [
+    (["sunrise+1440", "sunset"], "sunrise+1440"),
+    (["sunrise", "sunset-1440"], "sunset-1440"),
+    (["sunrise-1500", "sunset"], "sunrise-1500"),
+])
+def test_offsets_of_a_whole_day_or_more_are_refused(window, text):
+    # An offset of 1440 min or more from a sun event always lands on another date (issue: visits on other
+    # dates, after the season, in the dark).
+    with pytest.raises(SettingError) as err:
+        parse_window(window)
+    msg = str(err.value)
+    assert msg.startswith("time.window") and text in msg and "same day" in msg and 'window = ["' in msg
+
+
+@pytest.mark.parametrize("window, lat, lon, tz, bad", [
+    # sunrise - 600 min in a Minnesota June is about 19:30 the evening before (astral, below)
+    (["sunrise-600", "sunset-120"], 45.0, -93.3, "America/Chicago", "start"),
+    # sunset + 300 min at 60 N in June is after midnight
+    (["sunrise+60", "sunset+300"], 60.2, 24.9, "Europe/Helsinki", "end"),
+])
+def test_window_edges_that_leave_the_day_are_refused_naming_the_date(window, lat, lon, tz, bad):
+    date = dt.date(2027, 6, 14)
+    obs = astral.Observer(latitude=lat, longitude=lon)
+    zone = ZoneInfo(tz)
+    # the expectation from astral (reference library) and zoneinfo, independent of the code under test
+    edge = (astral.sun.sunrise(obs, date, tzinfo=zone) - dt.timedelta(minutes=600) if bad == "start"
+            else astral.sun.sunset(obs, date, tzinfo=zone) + dt.timedelta(minutes=300))
+    assert edge.astimezone(zone).date() != date
+    with pytest.raises(SettingError) as err:
+        field_days(date, date, weekdays=["mon"], window=window, timezone=tz, lat=lat, lon=lon)
+    msg = str(err.value)
+    assert msg.startswith("time.window") and window[0 if bad == "start" else 1] in msg
+    assert "2027-06-14" in msg and edge.astimezone(zone).date().isoformat() in msg and 'window = ["' in msg

@@ -144,8 +144,10 @@ def _parse_edge(text: Any, window: Any) -> WindowEdge:
     m = _SUN_RE.match(s)
     if m:
         offset = int(m.group(3) or 0) * (-1 if m.group(2) == "-" else 1)
-        if abs(offset) > 24 * 60:
-            raise SettingError("time.window", window, _WINDOW_ACCEPTED + " of at most 1440 minutes",
+        if abs(offset) >= 24 * 60:
+            raise SettingError("time.window", window, _WINDOW_ACCEPTED + f", with an offset of less than 1440 "
+                               f"minutes: {text!r} is a whole day or more from the sun event, so it falls on "
+                               "another date; both ends must fall on the same day as the field day",
                                fix=_WINDOW_FIX)
         return WindowEdge(m.group(1), offset)
     raise SettingError("time.window", window, _WINDOW_ACCEPTED + f"; {text!r} is neither", fix=_WINDOW_FIX)
@@ -303,6 +305,17 @@ def temporal_label(date: dt.date, temporal: str) -> str:
     return "season"
 
 
+def _check_same_day(date: dt.date, win: Window, w0: dt.datetime, w1: dt.datetime) -> None:
+    """Refuse a window whose edge falls on another local date than the field day (a large sun offset)."""
+    for edge, t in ((win.start, w0), (win.end, w1)):
+        if t.date() != date:
+            raise SettingError(
+                "time.window", str(win),
+                f"window ends that fall on the same day as the field day: on {date.isoformat()} \"{edge}\" is "
+                f"{t.isoformat(timespec='minutes')}, on {t.date().isoformat()}",
+                fix="use a smaller offset from the sun (or a clock time), e.g. " + _WINDOW_FIX[len("write for example "):])
+
+
 def _sun_times(observer: Any, date: dt.date, tz: dt.tzinfo) -> dict[str, dt.datetime]:
     import astral.sun
 
@@ -435,6 +448,7 @@ def field_days(
                 failures.append((date, str(exc)))
                 continue
         w0, w1 = win.start.at(date, tz, sun), win.end.at(date, tz, sun)
+        _check_same_day(date, win, w0, w1)
         length = (w1.astimezone(_UTC) - w0.astimezone(_UTC)).total_seconds() / 60.0
         if length <= 0 or length < min_minutes:
             dropped.append(date)
