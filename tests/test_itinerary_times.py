@@ -206,3 +206,44 @@ def test_the_schedule_and_the_report_say_how_times_were_drawn():
     design = build_design()
     design = replace(design, schedule=replace(design.schedule, time_draw=TIME_DRAW))
     assert TIME_DRAW in html.unescape(render_report(design))
+
+
+def test_provisional_times_keep_the_time_on_site_in_real_minutes_across_spring_forward():
+    # 2027-03-14 America/Chicago: 01:00 CST to 03:10 CDT is 70 real minutes (07:00-08:10 UTC). With 30 min
+    # on site the last start is 07:40 UTC (01:40 CST); subtracting 30 min on the wall clock from 03:10
+    # would give the nonexistent 02:40, read as 08:40 UTC, after the window's end (zoneinfo; common practice).
+    from geosample.randomizer.time import draw_times, field_days
+
+    cal = field_days("2027-03-14", "2027-03-14", weekdays=["sun"], window=["01:00", "03:10"],
+                     timezone="America/Chicago")
+    end = cal[0].window_end.timestamp()
+    assert end - cal[0].window_start.timestamp() == 70 * 60
+    times = draw_times(np.zeros(300, dtype=int), cal.days, rng=np.random.default_rng(4), minutes_on_site=30)
+    assert max(t.timestamp() for t in times) + 30 * 60 <= end
+
+
+def test_report_time_to_lab_counts_real_minutes_across_fall_back():
+    # 2027-11-07 America/Chicago: first sample 01:10 CDT (06:10 UTC), back at 01:30 CST (07:30 UTC): 80 real
+    # minutes, not the 20 the wall clock shows. With the fixture's lab minutes the report's hours to the
+    # lab are (80 + lab) / 60.
+    import sys
+    from dataclasses import replace
+    from pathlib import Path
+
+    from geosample.export.report import report_context
+
+    sys.path.insert(0, str(Path(__file__).parent))
+    from fixtures_design import build_design
+
+    design = build_design()
+    r0 = design.schedule.routes[0]
+    first = dt.datetime(2027, 11, 7, 1, 10, tzinfo=TZ)
+    back = dt.datetime(2027, 11, 7, 1, 30, fold=1, tzinfo=TZ)
+    assert back.timestamp() - first.timestamp() == 80 * 60
+    visits = tuple(replace(v, planned_time=first) if v.site_id in r0.site_ids else v
+                   for v in design.schedule.visits)
+    design = replace(design, schedule=replace(design.schedule, visits=visits,
+                                              routes=(replace(r0, end=back),) + design.schedule.routes[1:]))
+    lab = float(design.settings["time"]["lab_minutes"])
+    row = report_context(design)["routes"]["rows"][0]
+    assert row["to_lab_h"] == f"{(80 + lab) / 60:.1f}"

@@ -372,7 +372,8 @@ def _route_rows(design: Design) -> dict:
         day = days.get(date) or (sorted(per_date).index(date) + 1)
         for k, r in enumerate(trips, start=1):
             first = min((planned[s] for s in r.site_ids if planned.get(s) is not None), default=None)
-            to_lab = (((r.end - first).total_seconds() / 60 + lab) / 60) if first and r.end else None
+            # real minutes (timestamps): two times in one zone subtract on the wall clock, wrong across DST
+            to_lab = (((r.end.timestamp() - first.timestamp()) / 60 + lab) / 60) if first and r.end else None
             rows.append({"name": route_name(day, r, k, len(trips)), "access": r.access or "(none)",
                          "sites": len(r.site_ids), "km": f"{r.length_m / 1000:.1f}", "leave": _hhmm(r.start),
                          "back": _hhmm(r.end), "to_lab_h": "" if to_lab is None else f"{to_lab:.1f}",

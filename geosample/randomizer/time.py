@@ -616,7 +616,8 @@ def draw_times(
     hi = np.empty(len(days), dtype=np.int64)
     for i, d in enumerate(days):
         lo[i] = _epoch_minutes(d.window_start, up=True)
-        hi[i] = _epoch_minutes(d.window_end - dt.timedelta(minutes=float(minutes_on_site)), up=False)
+        # in real time: an aware datetime minus a timedelta is wall-clock arithmetic (wrong across DST)
+        hi[i] = math.floor((d.window_end.timestamp() - 60.0 * float(minutes_on_site)) / 60.0 + 1e-9)
     used = np.unique(idx)
     bad = [int(i) for i in used if hi[i] < lo[i]]
     if bad:
