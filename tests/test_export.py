@@ -481,3 +481,22 @@ def test_template_syntax_in_user_text_stays_text():
     assert "<title>Survey {# not a comment #}</title>" in text
     report = render_report(d)
     assert "{{ 7*7 }}" in report and "{% for x in y %}" in report
+
+
+def test_map_hours_to_the_lab_count_real_time_across_the_fall_back_hour():
+    """2027-11-07 in America/Chicago: 00:30 CDT to 03:30 CST is 4 hours of real time (the clock
+    goes back from 02:00 CDT to 01:00 CST; tz database rule, common knowledge), not the 3 a
+    wall-clock subtraction gives."""
+    import datetime as dt
+    from zoneinfo import ZoneInfo
+
+    from geosample.export.map import _route
+    from geosample.model import Route
+
+    tz = ZoneInfo("America/Chicago")
+    first = dt.datetime(2027, 11, 7, 0, 30, tzinfo=tz)
+    end = dt.datetime(2027, 11, 7, 3, 30, tzinfo=tz)
+    r = Route(day_index=0, date=first.date(), access="Launch", site_ids=("A-001",), coords_xy=((0.0, 0.0), (1.0, 1.0)),
+              coords_lonlat=((0.0, 0.0), (0.0, 0.0)), length_m=1.0, start=first, end=end, lab_deadline_ok=True,
+              notes=())
+    assert _route(r, "Day 1", 1, first, 30.0, 6.0)["first_to_lab_h"] == 4.5

@@ -166,7 +166,9 @@ def _route(r: Route, name: str, day: int, first: dt.datetime | None, lab_minutes
            holding_h: float | None) -> dict:
     lab_h = None
     if r.end is not None and first is not None:
-        lab_h = round(((r.end - first).total_seconds() / 60 + lab_minutes) / 60, 2)
+        # timestamps, not aware-datetime subtraction: two times in one ZoneInfo subtract on the
+        # wall clock, an hour off across a daylight-saving change
+        lab_h = round(((r.end.timestamp() - first.timestamp()) / 60 + lab_minutes) / 60, 2)
     return {
         "day": day, "date": r.date.isoformat(), "name": name, "access": r.access, "sites": list(r.site_ids),
         "length_m": round(float(r.length_m), 1), "start": format_time(r.start) if r.start else None,
