@@ -18,7 +18,7 @@ from .model import Design, Frame
 from .plan import GENERATED_STRATA, Plan
 from .rng import fresh_seed, seed_from_text
 
-__all__ = ["make_design", "resolve_seed", "build_frame_from_plan", "allocation_from_plan", "Layers", "load_layers"]
+__all__ = ["make_design", "resolve_seed", "build_frame_from_plan", "allocation_from_plan", "Layers", "load_layers", "plan_stages", "Stages"]
 
 log = logging.getLogger(__name__)
 
@@ -387,6 +387,57 @@ def _frame_lonlat(frame: Frame) -> tuple[float, float]:
     return float(lon), float(lat)
 
 
+@dataclass(frozen=True)
+class Stages:
+    """What the draw needs besides the frame: the allocation, the allowed days and how many field days."""
+
+    allocation: Any
+    days: tuple
+    field_days: int | None
+    days_plan: Any
+    warnings: tuple[str, ...]
+
+
+def plan_stages(plan: Plan, frame: Frame, settings: dict | None = None) -> Stages:
+    """Size and allocate, and compute the season's allowed days and the number of field days (seed-free).
+
+    :func:`make_design` and ``geosample simulate`` both call this, so a simulated
+    season is drawn from exactly the days and sizes the plan would use.
+    """
+    from .randomizer.time import field_days
+
+    settings = settings or plan.settings
+    allocation = allocation_from_plan(plan, frame)
+    t = settings["time"]
+    lon, lat = _frame_lonlat(frame)
+    days = field_days(t["start"], t["end"], weekdays=t["days"], skip=t["skip"], window=t["window"],
+                      timezone=settings["survey"]["timezone"], lat=lat, lon=lon, temporal=t["temporal"],
+                      min_minutes=t["minutes_on_site"])
+    day_tuple = getattr(days, "days", days)
+    day_warnings = tuple(getattr(days, "warnings", ()))
+    crew_days, days_plan = t.get("field_days"), None
+    if not crew_days and settings["size"].get("tolerance") is not None:
+        # the field days are the units: k days of m visits (stats.twostage), within the season's allowed days
+        days_plan = days_plan_from_plan(plan, strata=len(frame.strata))
+        n_temporal = len({getattr(day, "temporal_stratum", None) for day in day_tuple})
+        if days_plan.days < n_temporal <= len(day_tuple):
+            # every temporal stratum needs a field day: with those more days, fewer visits a day may do
+            for m in range(1, t["per_day"] + 1):
+                days_plan = days_plan_from_plan(plan, days=n_temporal, per_day=m, strata=len(frame.strata))
+                if days_plan.half_width <= settings["size"]["tolerance"] * (1 + 1e-9):
+                    break
+        k_units = _days_for_units(day_tuple, days_plan.days)
+        total = allocation.total  # a fixed size.n stays fixed: the report states what its days give
+        if settings["size"].get("n") is None and k_units * days_plan.per_day > total:
+            total = k_units * days_plan.per_day
+            allocation = allocation_from_plan(plan, frame, n=total)
+        crew_days = min(len(day_tuple), total, max(k_units, -(-total // t["per_day"]))) or None
+        if days_plan.days > len(day_tuple):
+            day_warnings += (f"the {settings['size']['bound']} bound needs {days_plan.days} field days, but the season "
+                             f"allows only {len(day_tuple)}: the report states what {len(day_tuple)} days give",)
+    return Stages(allocation, tuple(day_tuple), crew_days, days_plan, tuple(day_warnings))
+
+
 def make_design(
     plan: Plan,
     *,
@@ -424,7 +475,7 @@ def make_design(
     """
     from .itinerary import build_itinerary
     from .randomizer.space import draw_sites
-    from .randomizer.time import field_days, schedule_visits
+    from .randomizer.time import schedule_visits
 
     step = progress or (lambda name: None)
     settings = {k: dict(v) for k, v in plan.settings.items()}
@@ -441,34 +492,11 @@ def make_design(
     step("building the frame")
     frame = build_frame_from_plan(plan, layers, progress=progress)
     step("sizing and allocating")
-    allocation = allocation_from_plan(plan, frame)
+    stages = plan_stages(plan, frame, settings)
+    allocation, day_tuple, crew_days, days_plan = (stages.allocation, stages.days, stages.field_days,
+                                                   stages.days_plan)
+    day_warnings = stages.warnings
     t = settings["time"]
-    lon, lat = _frame_lonlat(frame)
-    days = field_days(t["start"], t["end"], weekdays=t["days"], skip=t["skip"], window=t["window"],
-                      timezone=settings["survey"]["timezone"], lat=lat, lon=lon, temporal=t["temporal"],
-                      min_minutes=t["minutes_on_site"])
-    day_tuple = getattr(days, "days", days)
-    day_warnings = tuple(getattr(days, "warnings", ()))
-    crew_days, days_plan = t.get("field_days"), None
-    if not crew_days and settings["size"].get("tolerance") is not None:
-        # the field days are the units: k days of m visits (stats.twostage), within the season's allowed days
-        days_plan = days_plan_from_plan(plan, strata=len(frame.strata))
-        n_temporal = len({getattr(day, "temporal_stratum", None) for day in day_tuple})
-        if days_plan.days < n_temporal <= len(day_tuple):
-            # every temporal stratum needs a field day: with those more days, fewer visits a day may do
-            for m in range(1, t["per_day"] + 1):
-                days_plan = days_plan_from_plan(plan, days=n_temporal, per_day=m, strata=len(frame.strata))
-                if days_plan.half_width <= settings["size"]["tolerance"] * (1 + 1e-9):
-                    break
-        k_units = _days_for_units(day_tuple, days_plan.days)
-        total = allocation.total  # a fixed size.n stays fixed: the report states what its days give
-        if settings["size"].get("n") is None and k_units * days_plan.per_day > total:
-            total = k_units * days_plan.per_day
-            allocation = allocation_from_plan(plan, frame, n=total)
-        crew_days = min(len(day_tuple), total, max(k_units, -(-total // t["per_day"]))) or None
-        if days_plan.days > len(day_tuple):
-            day_warnings += (f"the {settings['size']['bound']} bound needs {days_plan.days} field days, but the season "
-                             f"allows only {len(day_tuple)}: the report states what {len(day_tuple)} days give",)
     step("drawing sites")
     d = settings["draw"]
     draw = draw_sites(frame, allocation, method=d["method"], reserve=d["reserve"], spacing_m=d.get("spacing_m"),

@@ -68,6 +68,7 @@ from .replacements import Substitution, substitutions
 
 __all__ = [
     "TIME_TOLERANCE_H",
+    "results_from_records",
     "Record",
     "Flag",
     "StratumResults",
@@ -838,3 +839,18 @@ def _per_stratum(manifest: dict, names: list[str], usable: list[Record], statist
             n_reserve_used=sum(1 for r in recs if r.role == "reserve"),
         ))
     return tuple(out), tuple(order), tuple(exceeded), tuple(outside), flags
+
+
+def results_from_records(records: Sequence[Record], manifest: dict, *, source: str = "simulated results") -> Results:
+    """Results from records already made (no file): the per-stratum values, order and range checks of
+    :func:`read_results`, for records that are all used, clean values (``geosample simulate``).
+
+    Each record must have ``status`` ``"value"`` and ``used`` True; the stratum of each is the design's.
+    """
+    names = [s["name"] for s in (manifest.get("frame") or {}).get("strata", [])]
+    statistic = manifest.get("settings", {}).get("survey", {}).get("statistic", "mean")
+    usable = [r for r in records if r.used]
+    strata_res, order, rng_ex, outside, flags = _per_stratum(manifest, names, usable, statistic)
+    return Results(path=source, encoding="utf-8", delimiter=",", columns=("site_id", "result"),
+                   records=tuple(records), strata=strata_res, order=order, flags=tuple(flags), notes=(),
+                   range_exceeded=rng_ex, outside_support=outside)

@@ -32,6 +32,7 @@ def cli() -> None:
       geosample plan plan.toml -o design/           draw sites and field days
       geosample verify design/                      re-check a design
       geosample assess design/ results.csv          estimate and statement
+      geosample simulate plan.toml --population p.toml   the design over many seasons
       geosample demo -o demo-design/                try it on invented data
 
     Run 'geosample COMMAND --help' for each command's options.
@@ -41,7 +42,7 @@ def cli() -> None:
 def _register() -> None:
     from . import size as _size  # noqa: F401  (each module adds its command)
 
-    for name in ("register", "plan", "verify", "assess", "demo"):
+    for name in ("register", "plan", "verify", "assess", "simulate", "demo"):
         try:
             __import__(f"{__name__}.{name}")
         except ModuleNotFoundError as exc:  # a command not built yet

@@ -22,7 +22,7 @@ log = logging.getLogger("geosample")
 class GeosampleGroup(click.Group):
     """Lists commands in the order they are used, not alphabetically."""
 
-    order = ["size", "register", "plan", "verify", "assess", "demo"]
+    order = ["size", "register", "plan", "verify", "assess", "simulate", "demo"]
 
     def list_commands(self, ctx: click.Context) -> list[str]:
         names = list(self.commands)

@@ -1,0 +1,1 @@
+"""Design simulation (``geosample simulate``): populations, replicates, summaries."""
