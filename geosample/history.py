@@ -41,6 +41,8 @@ import sys
 from pathlib import Path
 from typing import Iterable
 
+from .audit import _jsonable as _canon  # settings as plain JSON values (the manifest's own rule)
+
 __all__ = ["FIELDS", "FILE_NAME", "content_key", "inputs_key", "same_plan", "store_dir", "store_path", "read_rows", "gather", "new_row",
            "write_rows", "append_row", "manifest_entry", "check_package"]
 
@@ -55,20 +57,6 @@ _IGNORED = {"draw": ("seed", "seed_text", "seed_used", "seed_source"), "survey":
             "export": None}
 _PATH_KEYS = ("water", "exclude", "access", "strata")
 _MAX_ROWS = 100_000
-
-
-def _canon(obj: object) -> object:
-    if isinstance(obj, dict):
-        return {str(k): _canon(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_canon(v) for v in obj]
-    if isinstance(obj, (dt.date, dt.datetime)):
-        return obj.isoformat()
-    if hasattr(obj, "item") and callable(obj.item):
-        return obj.item()
-    if isinstance(obj, float) and obj != obj:
-        return None
-    return obj
 
 
 def content_key(settings: dict, inputs: dict[str, str]) -> str:
