@@ -241,3 +241,17 @@ def test_same_seed_gives_identical_json_in_process_on_1_and_2_workers_and_on_a_c
     assert not code
     out = json.loads(capsys.readouterr().out)
     assert json.dumps(out, sort_keys=True) == text
+
+
+def test_coverage_interval_is_exact_and_never_of_zero_width():
+    """Clopper-Pearson: with all n seasons covering, the lower end is (a/2)^(1/n) (closed form of the
+    beta quantile, common practice); 0.025^(1/60) = 0.9404. Elsewhere checked against
+    statsmodels.stats.proportion.proportion_confint(method="beta")."""
+    from statsmodels.stats.proportion import proportion_confint
+
+    from geosample.simulate.engine import _clopper_pearson
+
+    lo, hi = _clopper_pearson(60, 60)
+    assert hi == 1.0 and lo == pytest.approx(0.025 ** (1 / 60), rel=1e-9) and lo < 1.0
+    ref = proportion_confint(271, 300, alpha=0.05, method="beta")
+    assert _clopper_pearson(271, 300) == pytest.approx(list(ref), rel=1e-9)

@@ -95,8 +95,8 @@ def summary_text(s: dict) -> str:
         f"{plan['sides']}-sided; {plan['primary_samples']} primary samples on {plan['field_days']} field days "
         f"of {plan['allowed_days']} allowed)",
         f"  true mean (average over seasons)  {s['true_mean']:.4g} ({s['scale']})",
-        f"  coverage of the true mean         {s['coverage']:.3f} ± {1.96 * s['coverage_mc_error']:.3f} "
-        f"(95% Monte Carlo error; nominal {conf:g})",
+        f"  coverage of the true mean         {s['coverage']:.3f} (95% Clopper-Pearson interval "
+        f"{s['coverage_interval'][0]:.3f} to {s['coverage_interval'][1]:.3f} over the seasons; nominal {conf:g})",
     ]
     hw = s["half_width"]
     lines.append(f"  half-width                        median {hw['median']:.4g}, 10-90% {hw['q10']:.4g} to "

@@ -154,6 +154,19 @@ def _quantiles(v: np.ndarray) -> dict:
             "q90": float(q[3]), "max": float(q[4])}
 
 
+def _clopper_pearson(k: int, n: int, level: float = 0.95) -> list[float] | None:
+    """The exact (Clopper-Pearson) interval for a proportion k/n: never of zero width at 0 or n,
+    where the normal-approximation error is 0."""
+    if not n:
+        return None
+    from scipy.stats import beta
+
+    a = 1.0 - level
+    lo = 0.0 if k == 0 else float(beta.ppf(a / 2, k, n - k + 1))
+    hi = 1.0 if k == n else float(beta.ppf(1 - a / 2, k + 1, n - k))
+    return [lo, hi]
+
+
 def _scenario(rows: list[dict]) -> dict:
     n = len(rows)
     cov = sum(1 for r in rows if r["covered"]) / n if n else float("nan")
@@ -163,6 +176,7 @@ def _scenario(rows: list[dict]) -> dict:
     below = decisions.get("below", 0) / n if n else float("nan")
     return {"replicates": n, "true_mean": float(np.mean([r["true_mean"] for r in rows])) if n else None,
             "coverage": cov, "coverage_mc_error": math.sqrt(cov * (1 - cov) / n) if n else None,
+            "coverage_interval": _clopper_pearson(sum(1 for r in rows if r["covered"]), n),
             "below": below, "below_mc_error": math.sqrt(below * (1 - below) / n) if n else None,
             "decisions": {k: v / n for k, v in sorted(decisions.items())},
             "half_width": _quantiles(np.array([r["half_width"] for r in rows if r["half_width"] is not None],
@@ -200,6 +214,7 @@ def summarize(rows: list[dict], setup: Setup, pop: Population, seed: int, shifts
         "true_mean": first["true_mean"],
         "coverage": first["coverage"],
         "coverage_mc_error": first["coverage_mc_error"],
+        "coverage_interval": first["coverage_interval"],
         "half_width": first["half_width"],
         "decisions": first["decisions"],
         "approximate": first["approximate"],
